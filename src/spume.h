@@ -1,0 +1,108 @@
+/* spume — public interface of the library.
+ *
+ * Ownership: every *_open / *_alloc has a matching *_close / *_free. Structs returned by value or
+ * filled through a pointer are owned by the caller unless a comment says otherwise. Functions that
+ * can fail return 0 (SP_OK) or a non-zero status and fill the caller's sp_error with a message that
+ * names the file and the problem. The library never prints and never exits.
+ *
+ * Global state: none. Thread counts come in through option structs (0 = OpenMP's default).
+ */
+#ifndef SPUME_H
+#define SPUME_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#define SP_VERSION "0.1.0"
+
+/* Hard caps on frame geometry, checked on every header value before any allocation. */
+#define SP_MAX_DIM 16384                 /* widest or tallest frame accepted, pixels */
+#define SP_MAX_PIXELS (64LL * 1024 * 1024) /* largest frame accepted, pixels (64 Mpx) */
+
+/* ---------------------------------------------------------------- errors */
+
+enum {
+    SP_OK = 0,
+    SP_ERR_INTERNAL = 1, /* a bug or resource failure (out of memory): exit status 1 */
+    SP_ERR_INPUT = 2     /* bad usage or bad input: exit status 2 */
+};
+
+typedef struct sp_error {
+    int code;       /* SP_OK, SP_ERR_INTERNAL or SP_ERR_INPUT */
+    char msg[1024]; /* one line, no trailing newline; names the file and the problem */
+} sp_error;
+
+/* Fill *err (may be NULL) with code and a printf-style message; returns code. */
+int sp_error_set(sp_error *err, int code, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 3, 4)))
+#endif
+    ;
+void sp_error_clear(sp_error *err);
+
+/* ---------------------------------------------------------------- images */
+
+/* A grey image at native depth: 1 byte (8-bit) or 2 bytes (16-bit, host order) per sample. */
+typedef struct sp_image {
+    int width, height;
+    int bytes;        /* 1 or 2 */
+    int bits;         /* significant bits: 8 for 8-bit; 9..16 for 16-bit storage (10/12-bit cameras) */
+    ptrdiff_t stride; /* bytes per row */
+    void *data;       /* owned by the image; freed by sp_image_free */
+} sp_image;
+
+/* Allocate (or reuse when the geometry already matches) a w×h image; checks the caps. */
+int sp_image_alloc(sp_image *im, int w, int h, int bytes, sp_error *err);
+void sp_image_free(sp_image *im);
+/* Check w×h against SP_MAX_DIM and SP_MAX_PIXELS; names `what` (a file) in the error. */
+int sp_check_dims(long long w, long long h, const char *what, sp_error *err);
+
+static inline const uint8_t *sp_row8(const sp_image *im, int y)
+{
+    return (const uint8_t *)im->data + (ptrdiff_t)y * im->stride;
+}
+static inline const uint16_t *sp_row16(const sp_image *im, int y)
+{
+    return (const uint16_t *)((const uint8_t *)im->data + (ptrdiff_t)y * im->stride);
+}
+
+/* ---------------------------------------------------------------- frame sources */
+
+typedef struct sp_roi {
+    int x, y, w, h; /* w == 0 or h == 0: the whole frame */
+} sp_roi;
+
+typedef struct sp_source_opts {
+    double fps;    /* > 0 overrides the container's rate; required for still frames */
+    int64_t start; /* first frame index to deliver (default 0) */
+    int64_t count; /* at most this many frames, 0 = all (default 0) */
+    int64_t step;  /* deliver every step-th frame (default 1) */
+    sp_roi roi;    /* crop applied to every delivered frame (default: whole frame) */
+} sp_source_opts;
+
+void sp_source_opts_default(sp_source_opts *o);
+
+typedef struct sp_source_info {
+    int width, height;           /* delivered size (after the ROI) */
+    int full_width, full_height; /* size of the recording */
+    int bytes, bits;             /* delivered sample size and significant bits */
+    double fps;                  /* frame rate used for timing (override, container, or 0 if VFR) */
+    int64_t frames_total;        /* frames in the recording, -1 if it cannot be known cheaply */
+    int64_t frames_selected;     /* frames the selection will deliver, -1 if unknown */
+    char kind[16];               /* "video" or "stills" */
+    char format[64];             /* codec or image format name */
+} sp_source_info;
+
+typedef struct sp_source sp_source;
+
+/* Open a video file, a directory of numbered still frames, or a printf pattern. *out is owned by
+ * the caller and released with sp_source_close. */
+int sp_source_open(sp_source **out, const char *path, const sp_source_opts *opts, sp_error *err);
+const sp_source_info *sp_source_get_info(const sp_source *s);
+/* Decode the next selected frame into *img (allocated or reused; caller frees with
+ * sp_image_free). *got = 0 at the end of the selection. *index is the frame number in the
+ * recording (0 = first decoded frame), *t_s its time in seconds from the first decoded frame. */
+int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int *got, sp_error *err);
+void sp_source_close(sp_source *s);
+
+#endif
