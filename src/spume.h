@@ -105,4 +105,58 @@ const sp_source_info *sp_source_get_info(const sp_source *s);
 int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int *got, sp_error *err);
 void sp_source_close(sp_source *s);
 
+/* ---------------------------------------------------------------- the measure job */
+
+typedef struct sp_progress {
+    const char *phase;    /* "background" or "detect" */
+    int64_t done, total;  /* frames; total -1 if unknown */
+    double elapsed_s;     /* since the phase began */
+} sp_progress;
+
+typedef void (*sp_progress_fn)(void *ud, const sp_progress *p);
+
+typedef struct sp_measure_settings {
+    sp_source_opts source; /* frame rate override, selection, region of interest */
+    double mm_per_px;      /* scale; 0 = uncalibrated (millimetre columns then hold pixels) */
+
+    /* Background (the light without bubbles). */
+    const char *bg_image;  /* an image of the empty field; NULL = estimate from the recording */
+    int bg_frames;         /* frames sampled per estimate (default 40, at most 255) */
+    double bg_percentile;  /* per-pixel percentile of the samples (default 50 = median) */
+    int bg_segments;       /* estimates spread along the run and interpolated in time, to follow
+                              slow drift of the light (default 1) */
+
+    /* Detection. */
+    double threshold;      /* transmission below which a pixel is bubble (default 0.7) */
+    int otsu;              /* 1: Otsu's threshold per frame instead (default 0) */
+    int flicker;           /* 1: compensate each frame's overall light level (default 1) */
+    int fill;              /* 1: fill the refraction spot (default 1) */
+    double min_diam_px;    /* size gates on the area-equivalent diameter (defaults 3, 0 = none) */
+    double max_diam_px;
+    double fit_min_px;     /* sub-pixel edge fit from this diameter up (default 8) */
+    double edge_level;     /* edge where transmission crosses this fraction of the local step (0.5) */
+
+    int threads;           /* worker threads, 0 = OpenMP default */
+    sp_progress_fn progress; /* may be NULL; called from the calling thread */
+    void *progress_ud;
+} sp_measure_settings;
+
+void sp_measure_settings_default(sp_measure_settings *s);
+
+typedef struct sp_measure_report {
+    int64_t frames;        /* frames analysed */
+    int64_t detections;    /* bubble rows written */
+    double fps;            /* frame rate used */
+    double holdup;         /* mean projected gas fraction of the region */
+    int width, height;     /* analysed region */
+} sp_measure_report;
+
+/* Run detection over INPUT and write outdir/bubbles.csv, outdir/frames.csv and
+ * outdir/summary.json (each under a temporary name, renamed when complete). */
+int sp_measure(const char *input, const char *outdir, const sp_measure_settings *s, sp_measure_report *rep,
+               sp_error *err);
+
+/* Create dir (and parents) if missing and check that files can be created in it. */
+int sp_outdir_prepare(const char *dir, sp_error *err);
+
 #endif

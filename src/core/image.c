@@ -10,8 +10,8 @@ int sp_check_dims(long long w, long long h, const char *what, sp_error *err)
         return sp_error_set(err, SP_ERR_INPUT, "%s: frame size %lldx%lld is empty or negative", what, w, h);
     if (w > SP_MAX_DIM || h > SP_MAX_DIM || w * h > SP_MAX_PIXELS)
         return sp_error_set(err, SP_ERR_INPUT,
-                            "%s: frame size %lldx%lld exceeds the cap (%d px a side, %lld px in all)", what, w,
-                            h, SP_MAX_DIM, (long long)SP_MAX_PIXELS);
+                            "%s: frame size %lldx%lld exceeds the cap (%d px a side, %lld px in all)", what,
+                            w, h, SP_MAX_DIM, (long long)SP_MAX_PIXELS);
     return SP_OK;
 }
 

@@ -1,0 +1,412 @@
+/* spume command line: parses arguments, calls the library, prints. Nothing else lives here. */
+#include "spume.h"
+#include "synth/synth.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+static const char USAGE[] =
+    "usage: spume COMMAND ...\n"
+    "\n"
+    "  spume measure INPUT --out DIR [options]   detect and measure bubbles in every frame\n"
+    "  spume synth SCENARIO --out DIR [options]  render a shadowgraph scene with known truth\n"
+    "  spume version                             print the version\n"
+    "  spume help [COMMAND]                      this text, or a command's options\n"
+    "\n"
+    "INPUT is a video file, a directory of numbered still frames, or a printf pattern such as\n"
+    "frames/f%05d.png. See docs/usage.md for every option.\n";
+
+static const char MEASURE_HELP[] =
+    "usage: spume measure INPUT --out DIR [options]\n"
+    "\n"
+    "Frames\n"
+    "  --fps F             frame rate (required for still frames; overrides a video's own)\n"
+    "  --start N           first frame to analyse (default 0)\n"
+    "  --count N           analyse at most N frames (default all)\n"
+    "  --step N            analyse every N-th frame (default 1)\n"
+    "  --roi X,Y,W,H       region of interest in pixels (default the whole frame)\n"
+    "Scale\n"
+    "  --scale MM_PER_PX   millimetres per pixel (without it the mm columns hold pixels)\n"
+    "Background (the light with no bubble in front of it)\n"
+    "  --background FILE   an image of the empty field instead of an estimate from the frames\n"
+    "  --bg-frames N       frames sampled for the estimate (default 40, at most 255)\n"
+    "  --bg-percentile P   per-pixel percentile of the samples (default 50)\n"
+    "  --bg-segments K     K estimates along the run, interpolated in time (default 1)\n"
+    "Detection\n"
+    "  --threshold T|otsu  transmission below which a pixel is bubble (default 0.7), or Otsu per frame\n"
+    "  --no-flicker        do not compensate each frame's overall light level\n"
+    "  --no-fill           do not fill the bright refraction spot\n"
+    "  --min-diam-px D     drop bubbles smaller than D px (default 3)\n"
+    "  --max-diam-px D     drop bubbles larger than D px (default no limit)\n"
+    "  --fit-min-px D      sub-pixel edge fit from D px up (default 8)\n"
+    "  --edge-level F      edge where transmission crosses F of the local step (default 0.5)\n"
+    "Running\n"
+    "  --threads N         worker threads (default all cores)\n"
+    "  --quiet             no progress or summary on stderr\n";
+
+static const char SYNTH_HELP[] =
+    "usage: spume synth SCENARIO --out DIR [options]\n"
+    "\n"
+    "  --bytes 1|2         8-bit (default) or 16-bit frames\n"
+    "  --bits N            significant bits of 16-bit frames (e.g. 12 for a 12-bit camera)\n"
+    "  --frames N          number of frames (default: the scenario's)\n"
+    "  --size WxH          frame size (default: the scenario's)\n"
+    "  --seed N            random seed (default fixed, so runs repeat)\n"
+    "  --no-png            do not write the PNG frames\n"
+    "  --no-video          do not write the FFV1 video\n"
+    "  --threads N         worker threads (default all cores)\n"
+    "  --quiet             no progress on stderr\n";
+
+static int usage_error(const char *cmd, const char *fmt, const char *arg)
+{
+    fprintf(stderr, "spume %s: ", cmd);
+    fprintf(stderr, fmt, arg);
+    fprintf(stderr, " (see 'spume help %s')\n", cmd);
+    return 2;
+}
+
+static int parse_double(const char *cmd, const char *opt, const char *s, double *v)
+{
+    char *end;
+    errno = 0;
+    double d = strtod(s, &end);
+    if (errno || end == s || *end || !isfinite(d)) {
+        fprintf(stderr, "spume %s: %s: '%s' is not a number\n", cmd, opt, s);
+        return 2;
+    }
+    *v = d;
+    return 0;
+}
+
+static int parse_int(const char *cmd, const char *opt, const char *s, long long lo, long long hi,
+                     long long *v)
+{
+    char *end;
+    errno = 0;
+    long long d = strtoll(s, &end, 10);
+    if (errno || end == s || *end || d < lo || d > hi) {
+        fprintf(stderr, "spume %s: %s: '%s' is not a whole number in %lld..%lld\n", cmd, opt, s, lo, hi);
+        return 2;
+    }
+    *v = d;
+    return 0;
+}
+
+typedef struct progress_state {
+    int show;
+    double last;
+} progress_state;
+
+static double wall(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+static void on_progress(void *ud, const sp_progress *p)
+{
+    progress_state *ps = ud;
+    if (!ps->show)
+        return;
+    double t = wall();
+    if (t - ps->last < 0.25 && !(p->total > 0 && p->done >= p->total))
+        return;
+    ps->last = t;
+    double rate = p->elapsed_s > 0 ? p->done / p->elapsed_s : 0;
+    if (p->total > 0) {
+        double left = rate > 0 ? (p->total - p->done) / rate : 0;
+        fprintf(stderr, "\r%-10s %lld/%lld frames  %.0f frames/s  %.0f s left   ", p->phase,
+                (long long)p->done, (long long)p->total, rate, left);
+    } else {
+        fprintf(stderr, "\r%-10s %lld frames  %.0f frames/s   ", p->phase, (long long)p->done, rate);
+    }
+    fflush(stderr);
+}
+
+static void end_progress(progress_state *ps)
+{
+    if (ps->show && ps->last > 0)
+        fprintf(stderr, "\r%-70s\r", "");
+}
+
+static int cmd_measure(int argc, char **argv)
+{
+    const char *cmd = "measure", *input = NULL, *out = NULL;
+    sp_measure_settings s;
+    sp_measure_settings_default(&s);
+    int quiet = 0;
+    for (int i = 0; i < argc; i++) {
+        const char *a = argv[i];
+        const char *v = i + 1 < argc ? argv[i + 1] : NULL;
+        long long n;
+        double d;
+#define NEED_VALUE()                                                                                         \
+    do {                                                                                                     \
+        if (!v)                                                                                              \
+            return usage_error(cmd, "%s needs a value", a);                                                  \
+        i++;                                                                                                 \
+    } while (0)
+        if (!strcmp(a, "--help") || !strcmp(a, "-h")) {
+            fputs(MEASURE_HELP, stdout);
+            return 0;
+        } else if (!strcmp(a, "--out")) {
+            NEED_VALUE();
+            out = v;
+        } else if (!strcmp(a, "--fps")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d > 0 && d < 1e8))
+                return usage_error(cmd, "--fps must be positive, not '%s'", v);
+            s.source.fps = d;
+        } else if (!strcmp(a, "--scale")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d > 0 && d < 1e6))
+                return usage_error(cmd, "--scale must be positive, not '%s'", v);
+            s.mm_per_px = d;
+        } else if (!strcmp(a, "--start")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 0, INT64_MAX / 4, &n))
+                return 2;
+            s.source.start = n;
+        } else if (!strcmp(a, "--count")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 1, INT64_MAX / 4, &n))
+                return 2;
+            s.source.count = n;
+        } else if (!strcmp(a, "--step")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 1, 1000000, &n))
+                return 2;
+            s.source.step = n;
+        } else if (!strcmp(a, "--roi")) {
+            NEED_VALUE();
+            int x, y, w, h;
+            char tail;
+            if (sscanf(v, "%d,%d,%d,%d%c", &x, &y, &w, &h, &tail) != 4 || x < 0 || y < 0 || w < 1 || h < 1)
+                return usage_error(cmd, "--roi wants X,Y,W,H in pixels with W,H >= 1, not '%s'", v);
+            s.source.roi = (sp_roi){x, y, w, h};
+        } else if (!strcmp(a, "--background")) {
+            NEED_VALUE();
+            s.bg_image = v;
+        } else if (!strcmp(a, "--bg-frames")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 1, 255, &n))
+                return 2;
+            s.bg_frames = (int)n;
+        } else if (!strcmp(a, "--bg-percentile")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d >= 0 && d <= 100))
+                return usage_error(cmd, "--bg-percentile must lie in 0..100, not '%s'", v);
+            s.bg_percentile = d;
+        } else if (!strcmp(a, "--bg-segments")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 1, 1000, &n))
+                return 2;
+            s.bg_segments = (int)n;
+        } else if (!strcmp(a, "--threshold")) {
+            NEED_VALUE();
+            if (!strcmp(v, "otsu")) {
+                s.otsu = 1;
+            } else {
+                if (parse_double(cmd, a, v, &d))
+                    return 2;
+                if (!(d > 0 && d < 1))
+                    return usage_error(cmd, "--threshold must lie between 0 and 1 (or be 'otsu'), not '%s'",
+                                       v);
+                s.threshold = d;
+                s.otsu = 0;
+            }
+        } else if (!strcmp(a, "--no-flicker")) {
+            s.flicker = 0;
+        } else if (!strcmp(a, "--no-fill")) {
+            s.fill = 0;
+        } else if (!strcmp(a, "--min-diam-px") || !strcmp(a, "--max-diam-px") || !strcmp(a, "--fit-min-px")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d >= 0 && d <= SP_MAX_DIM))
+                return usage_error(cmd, "size options take pixels in 0..16384, not '%s'", v);
+            *(!strcmp(a, "--min-diam-px")   ? &s.min_diam_px
+              : !strcmp(a, "--max-diam-px") ? &s.max_diam_px
+                                            : &s.fit_min_px) = d;
+        } else if (!strcmp(a, "--edge-level")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d > 0 && d < 1))
+                return usage_error(cmd, "--edge-level must lie between 0 and 1, not '%s'", v);
+            s.edge_level = d;
+        } else if (!strcmp(a, "--threads")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 1, 1024, &n))
+                return 2;
+            s.threads = (int)n;
+        } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
+            quiet = 1;
+        } else if (a[0] == '-' && a[1]) {
+            return usage_error(cmd, "unknown option '%s'", a);
+        } else if (!input) {
+            input = a;
+        } else {
+            return usage_error(cmd, "unexpected argument '%s'", a);
+        }
+#undef NEED_VALUE
+    }
+    if (!input)
+        return usage_error(cmd, "%s", "no INPUT given");
+    if (!out)
+        return usage_error(cmd, "%s", "no --out DIR given");
+
+    progress_state ps = {!quiet && isatty(2), 0};
+    s.progress = on_progress;
+    s.progress_ud = &ps;
+    sp_measure_report rep;
+    sp_error err;
+    sp_error_clear(&err);
+    int rc = sp_measure(input, out, &s, &rep, &err);
+    end_progress(&ps);
+    if (rc) {
+        fprintf(stderr, "spume measure: %s\n", err.msg);
+        return err.code == SP_ERR_INPUT ? 2 : 1;
+    }
+    if (!quiet)
+        fprintf(stderr,
+                "spume measure: %lld frames (%dx%d), %lld bubbles, mean holdup %.4f -> %s/bubbles.csv\n",
+                (long long)rep.frames, rep.width, rep.height, (long long)rep.detections, rep.holdup, out);
+    return 0;
+}
+
+static void synth_progress(void *ud, int64_t done, int64_t total)
+{
+    progress_state *ps = ud;
+    sp_progress p = {"synth", done, total, 0};
+    on_progress(ps, &p);
+}
+
+static int cmd_synth(int argc, char **argv)
+{
+    const char *cmd = "synth", *scenario = NULL, *out = NULL;
+    sp_synth_opts o;
+    sp_synth_opts_default(&o);
+    int quiet = 0;
+    for (int i = 0; i < argc; i++) {
+        const char *a = argv[i];
+        const char *v = i + 1 < argc ? argv[i + 1] : NULL;
+        long long n;
+        if (!strcmp(a, "--help") || !strcmp(a, "-h")) {
+            fputs(SYNTH_HELP, stdout);
+            fputs("\nscenarios:", stdout);
+            for (const char *const *sc = sp_synth_scenarios(); *sc; sc++)
+                printf(" %s", *sc);
+            fputs("\n", stdout);
+            return 0;
+        }
+        int takes = !strcmp(a, "--out") || !strcmp(a, "--bytes") || !strcmp(a, "--bits") ||
+                    !strcmp(a, "--frames") || !strcmp(a, "--size") || !strcmp(a, "--seed") ||
+                    !strcmp(a, "--threads");
+        if (takes && !v)
+            return usage_error(cmd, "%s needs a value", a);
+        if (takes)
+            i++;
+        if (!strcmp(a, "--out")) {
+            out = v;
+        } else if (!strcmp(a, "--bytes")) {
+            if (parse_int(cmd, a, v, 1, 2, &n))
+                return 2;
+            o.bytes = (int)n;
+        } else if (!strcmp(a, "--bits")) {
+            if (parse_int(cmd, a, v, 9, 16, &n))
+                return 2;
+            o.bits = (int)n;
+        } else if (!strcmp(a, "--frames")) {
+            if (parse_int(cmd, a, v, 1, 1000000, &n))
+                return 2;
+            o.frames = (int)n;
+        } else if (!strcmp(a, "--size")) {
+            int w, h;
+            char tail;
+            if (sscanf(v, "%dx%d%c", &w, &h, &tail) != 2 || w < 16 || h < 16 || w > SP_MAX_DIM ||
+                h > SP_MAX_DIM)
+                return usage_error(cmd, "--size wants WxH, 16..16384 each, not '%s'", v);
+            o.width = w;
+            o.height = h;
+        } else if (!strcmp(a, "--seed")) {
+            if (parse_int(cmd, a, v, 0, INT64_MAX, &n))
+                return 2;
+            o.seed = (uint64_t)n;
+        } else if (!strcmp(a, "--threads")) {
+            if (parse_int(cmd, a, v, 1, 1024, &n))
+                return 2;
+            o.threads = (int)n;
+        } else if (!strcmp(a, "--no-png")) {
+            o.png = 0;
+        } else if (!strcmp(a, "--no-video")) {
+            o.video = 0;
+        } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
+            quiet = 1;
+        } else if (a[0] == '-' && a[1]) {
+            return usage_error(cmd, "unknown option '%s'", a);
+        } else if (!scenario) {
+            scenario = a;
+        } else {
+            return usage_error(cmd, "unexpected argument '%s'", a);
+        }
+    }
+    if (!scenario)
+        return usage_error(cmd, "%s", "no SCENARIO given");
+    if (!out)
+        return usage_error(cmd, "%s", "no --out DIR given");
+    progress_state ps = {!quiet && isatty(2), 0};
+    o.progress = synth_progress;
+    o.progress_ud = &ps;
+    sp_error err;
+    sp_error_clear(&err);
+    int rc = sp_synth_run(scenario, out, &o, &err);
+    end_progress(&ps);
+    if (rc) {
+        fprintf(stderr, "spume synth: %s\n", err.msg);
+        return err.code == SP_ERR_INPUT ? 2 : 1;
+    }
+    if (!quiet)
+        fprintf(stderr, "spume synth: scene '%s' written to %s\n", scenario, out);
+    return 0;
+}
+
+int main(int argc, char **argv)
+{
+    if (argc < 2) {
+        fputs(USAGE, stderr);
+        return 2;
+    }
+    const char *c = argv[1];
+    if (!strcmp(c, "measure"))
+        return cmd_measure(argc - 2, argv + 2);
+    if (!strcmp(c, "synth"))
+        return cmd_synth(argc - 2, argv + 2);
+    if (!strcmp(c, "version") || !strcmp(c, "--version")) {
+        printf("spume %s\n", SP_VERSION);
+        return 0;
+    }
+    if (!strcmp(c, "help") || !strcmp(c, "--help") || !strcmp(c, "-h")) {
+        if (argc > 2 && !strcmp(argv[2], "measure"))
+            fputs(MEASURE_HELP, stdout);
+        else if (argc > 2 && !strcmp(argv[2], "synth"))
+            fputs(SYNTH_HELP, stdout);
+        else
+            fputs(USAGE, stdout);
+        return 0;
+    }
+    fprintf(stderr, "spume: unknown command '%s'\n\n%s", c, USAGE);
+    return 2;
+}

@@ -1,0 +1,131 @@
+/* Per-frame detection chain. Each stage lives in its own file; this one only sequences them and
+ * owns their workspaces. */
+#include "detect/detect.h"
+
+#include "detect/fill.h"
+#include "detect/label.h"
+#include "detect/normalise.h"
+#include "detect/threshold.h"
+
+#include <stdlib.h>
+
+struct sp_detector {
+    int w, h;
+    uint8_t *mask;
+    int32_t *labels;
+    sp_labeler *lb;
+    sp_filler *fl;
+    sp_measurer *ms;
+    sp_bubble *bubbles;
+    int cap;
+};
+
+void sp_detect_opts_default(sp_detect_opts *o)
+{
+    o->threshold = 0.7;
+    o->otsu = 0;
+    o->flicker = 1;
+    o->fill = 1;
+    sp_measure_opts_default(&o->measure);
+}
+
+sp_detector *sp_detector_new(void)
+{
+    sp_detector *d = calloc(1, sizeof *d);
+    if (!d)
+        return NULL;
+    d->lb = sp_labeler_new();
+    d->fl = sp_filler_new();
+    d->ms = sp_measurer_new();
+    if (!d->lb || !d->fl || !d->ms) {
+        sp_detector_free(d);
+        return NULL;
+    }
+    return d;
+}
+
+void sp_detector_free(sp_detector *d)
+{
+    if (!d)
+        return;
+    free(d->mask);
+    free(d->labels);
+    free(d->bubbles);
+    sp_labeler_free(d->lb);
+    sp_filler_free(d->fl);
+    sp_measurer_free(d->ms);
+    free(d);
+}
+
+static int ensure_size(sp_detector *d, int w, int h, sp_error *err)
+{
+    if (d->w == w && d->h == h)
+        return SP_OK;
+    free(d->mask);
+    free(d->labels);
+    size_t n = (size_t)w * (size_t)h;
+    d->mask = malloc(n);
+    d->labels = malloc(n * sizeof *d->labels);
+    if (!d->mask || !d->labels) {
+        d->w = d->h = 0;
+        return sp_error_set(err, SP_ERR_INTERNAL, "detect: out of memory for a %dx%d frame", w, h);
+    }
+    d->w = w;
+    d->h = h;
+    return SP_OK;
+}
+
+int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const sp_detect_opts *o,
+                  int nthreads, sp_detect_result *res, sp_error *err)
+{
+    const int w = frame->width, h = frame->height;
+    int rc = ensure_size(d, w, h, err);
+    if (rc)
+        return rc;
+    sp_frame_view v = {frame, bg, 1.f};
+    if (o->flicker)
+        v.gain = sp_norm_gain(frame, bg);
+
+    float level = (float)o->threshold;
+    if (o->otsu) {
+        uint64_t hist[SP_OTSU_BINS];
+        sp_norm_hist(&v, SP_OTSU_RANGE, hist, SP_OTSU_BINS);
+        int t = sp_otsu_hist(hist, SP_OTSU_BINS);
+        /* Class 0 holds bins 0..t: the level is the upper edge of bin t. */
+        level = t < 0 ? (float)o->threshold : (float)(t + 1) * SP_OTSU_RANGE / SP_OTSU_BINS;
+    }
+    sp_norm_mask(&v, level, d->mask);
+    if (o->fill && (rc = sp_fill_holes(d->fl, d->mask, w, h, err)))
+        return rc;
+
+    const sp_component *comps = NULL;
+    int nc = 0;
+    if ((rc = sp_label_run(d->lb, d->mask, w, w, h, d->labels, &comps, &nc, nthreads, err)))
+        return rc;
+    if (nc > d->cap) {
+        sp_bubble *nb = realloc(d->bubbles, sizeof *nb * (size_t)nc);
+        if (!nb)
+            return sp_error_set(err, SP_ERR_INTERNAL, "detect: out of memory for %d bubbles", nc);
+        d->bubbles = nb;
+        d->cap = nc;
+    }
+    int n = 0;
+    double gas = 0;
+    for (int i = 0; i < nc; i++) {
+        int keep = 0;
+        rc = sp_measure_component(d->ms, &v, d->labels, i + 1, &comps[i], &o->measure, &d->bubbles[n], &keep,
+                                  err);
+        if (rc)
+            return rc;
+        if (keep) {
+            gas += d->bubbles[n].area_px;
+            n++;
+        }
+    }
+    res->bubbles = d->bubbles;
+    res->n = n;
+    res->gain = v.gain;
+    res->level = level;
+    res->gas_px = gas;
+    return SP_OK;
+}

@@ -1,0 +1,514 @@
+/* The measure job: stream frames, estimate the background, detect bubbles frame by frame in
+ * parallel, and write the tables in frame order. Memory is bounded by the batch of frames in
+ * flight and the background samples, never by the length of the recording. */
+#include "spume.h"
+
+#include "core/jsonw.h"
+#include "core/outfile.h"
+#include "detect/background.h"
+#include "detect/detect.h"
+#include "pipeline/identity.h"
+
+#include <math.h>
+#include <omp.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#define MAX_BATCH 64
+#define BG_MEMORY_CAP (1024LL * 1024 * 1024) /* bytes of background samples held at once */
+
+void sp_measure_settings_default(sp_measure_settings *s)
+{
+    memset(s, 0, sizeof *s);
+    sp_source_opts_default(&s->source);
+    s->bg_frames = 40;
+    s->bg_percentile = 50;
+    s->bg_segments = 1;
+    sp_detect_opts d;
+    sp_detect_opts_default(&d);
+    s->threshold = d.threshold;
+    s->otsu = d.otsu;
+    s->flicker = d.flicker;
+    s->fill = d.fill;
+    s->min_diam_px = d.measure.min_diam_px;
+    s->max_diam_px = d.measure.max_diam_px;
+    s->fit_min_px = d.measure.fit_min_px;
+    s->edge_level = d.measure.edge_level;
+}
+
+static double now_s(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+typedef struct bgset {
+    int n;          /* estimates */
+    float **img;    /* n frame-sized float images */
+    double *centre; /* selection position (0-based delivered frame count) each estimate stands for */
+    char mode[32];
+    int samples; /* frames sampled per estimate */
+} bgset;
+
+static void bgset_free(bgset *b)
+{
+    for (int i = 0; i < b->n; i++)
+        free(b->img ? b->img[i] : NULL);
+    free(b->img);
+    free(b->centre);
+    memset(b, 0, sizeof *b);
+}
+
+static int bgset_alloc(bgset *b, int n, int w, int h, sp_error *err)
+{
+    b->img = calloc((size_t)n, sizeof *b->img);
+    b->centre = calloc((size_t)n, sizeof *b->centre);
+    if (!b->img || !b->centre)
+        return sp_error_set(err, SP_ERR_INTERNAL, "background: out of memory");
+    b->n = n;
+    for (int i = 0; i < n; i++)
+        if (!(b->img[i] = malloc(sizeof(float) * (size_t)w * (size_t)h)))
+            return sp_error_set(err, SP_ERR_INTERNAL, "background: out of memory for %dx%d", w, h);
+    return SP_OK;
+}
+
+/* Background from an image of the empty field, cropped like the recording. */
+static int bg_from_file(const sp_measure_settings *s, int w, int h, bgset *b, sp_error *err)
+{
+    sp_source_opts o;
+    sp_source_opts_default(&o);
+    o.fps = 1;
+    o.count = 1;
+    o.roi = s->source.roi;
+    sp_source *src = NULL;
+    sp_image img = {0};
+    int got = 0, rc;
+    int64_t idx;
+    double t;
+    if ((rc = sp_source_open(&src, s->bg_image, &o, err)))
+        return rc;
+    if ((rc = sp_source_next(src, &img, &idx, &t, &got, err)))
+        goto done;
+    if (!got) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: no image in the background file", s->bg_image);
+        goto done;
+    }
+    if (img.width != w || img.height != h) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: background is %dx%d but the frames are %dx%d", s->bg_image,
+                          img.width, img.height, w, h);
+        goto done;
+    }
+    if ((rc = bgset_alloc(b, 1, w, h, err)))
+        goto done;
+    rc = sp_bg_from_image(&img, b->img[0], err);
+    snprintf(b->mode, sizeof b->mode, "image");
+    b->samples = 1;
+done:
+    sp_image_free(&img);
+    sp_source_close(src);
+    return rc;
+}
+
+/* Per-pixel percentile over frames sampled evenly across the selection, in bg_segments
+ * consecutive parts of the run (one estimate each, later interpolated in time). One sequential
+ * read of the recording; only the sampled frames are kept. */
+static int bg_from_recording(const char *input, const sp_measure_settings *s, const sp_source_info *info,
+                             bgset *b, sp_error *err)
+{
+    const int w = info->width, h = info->height, bytes = info->bytes;
+    int64_t sel = info->frames_selected;
+    int nseg = s->bg_segments < 1 ? 1 : s->bg_segments;
+    int per = s->bg_frames < 1 ? 1 : s->bg_frames;
+    if (per > SP_BG_MAX_SAMPLES)
+        per = SP_BG_MAX_SAMPLES;
+    if (sel < 0)
+        nseg = 1; /* length unknown: sample the first frames only */
+    if (sel > 0 && nseg > sel)
+        nseg = (int)sel;
+    long long frame_bytes = (long long)w * h * bytes;
+    while (per > 1 && frame_bytes * per * nseg > BG_MEMORY_CAP)
+        per--;
+    if (sel > 0 && per > sel / nseg)
+        per = (int)(sel / nseg) > 0 ? (int)(sel / nseg) : 1;
+
+    int rc;
+    sp_bg_builder **bld = calloc((size_t)nseg, sizeof *bld);
+    sp_source *src = NULL;
+    sp_image img = {0};
+    if (!bld)
+        return sp_error_set(err, SP_ERR_INTERNAL, "background: out of memory");
+    for (int k = 0; k < nseg; k++)
+        if ((rc = sp_bg_builder_new(&bld[k], w, h, bytes, per, err)))
+            goto done;
+    if ((rc = sp_source_open(&src, input, &s->source, err)))
+        goto done;
+
+    double t0 = now_s();
+    int64_t pos = 0;
+    int got = 1;
+    while (got) {
+        int64_t idx;
+        double t;
+        int seg, take = 0;
+        if (sel > 0) {
+            /* Segment k covers positions [k·sel/nseg, (k+1)·sel/nseg); sample j of it sits at the
+             * middle of the j-th of `per` equal parts. */
+            seg = (int)(pos * nseg / sel);
+            if (seg >= nseg)
+                break;
+            int64_t a = seg * sel / nseg, len = (seg + 1) * sel / nseg - a;
+            int64_t j = (pos - a) * per / len;
+            int64_t want = a + (2 * j + 1) * len / (2 * per);
+            take = pos == want && sp_bg_builder_count(bld[seg]) < per;
+        } else {
+            seg = 0;
+            if (pos >= per)
+                break;
+            take = 1;
+        }
+        if ((rc = sp_source_next(src, &img, &idx, &t, &got, err)))
+            goto done;
+        if (!got)
+            break;
+        if (take && (rc = sp_bg_builder_add(bld[seg], &img, err)))
+            goto done;
+        pos++;
+        if (s->progress && (pos & 15) == 0) {
+            sp_progress p = {"background", pos, sel, now_s() - t0};
+            s->progress(s->progress_ud, &p);
+        }
+    }
+    if ((rc = bgset_alloc(b, nseg, w, h, err)))
+        goto done;
+    int64_t seen = pos;
+    for (int k = 0; k < nseg; k++) {
+        if (sp_bg_builder_count(bld[k]) == 0) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: no frames to estimate the background from", input);
+            goto done;
+        }
+        if ((rc = sp_bg_builder_finish(bld[k], s->bg_percentile, b->img[k], s->threads, err)))
+            goto done;
+        int64_t n = sel > 0 ? sel : seen;
+        b->centre[k] = ((double)k + 0.5) * (double)n / nseg - 0.5;
+    }
+    snprintf(b->mode, sizeof b->mode, "recording");
+    b->samples = per;
+done:
+    for (int k = 0; k < nseg; k++)
+        sp_bg_builder_free(bld[k]);
+    free(bld);
+    sp_image_free(&img);
+    sp_source_close(src);
+    return rc;
+}
+
+/* The background a frame at selection position pos is measured against: linear interpolation
+ * between the two nearest estimates (into buf), or the single estimate. */
+static const float *bg_for(const bgset *b, int64_t pos, float *buf, size_t npx)
+{
+    if (b->n == 1 || pos <= b->centre[0])
+        return b->img[0];
+    if (pos >= b->centre[b->n - 1])
+        return b->img[b->n - 1];
+    int k = 0;
+    while (k + 1 < b->n && b->centre[k + 1] < pos)
+        k++;
+    float f = (float)((pos - b->centre[k]) / (b->centre[k + 1] - b->centre[k]));
+    const float *a = b->img[k], *c = b->img[k + 1];
+    for (size_t i = 0; i < npx; i++)
+        buf[i] = a[i] + f * (c[i] - a[i]);
+    return buf;
+}
+
+typedef struct slot {
+    sp_image img;
+    int64_t index;
+    double t;
+    sp_bubble *bub;
+    int n, cap;
+    double gain, level, gas_px;
+    int rc;
+    sp_error err;
+} slot;
+
+typedef struct totals {
+    int64_t frames, detections, used;
+    double s1, s2, s3, s4; /* sums of d, d², d³, d⁴ (mm) over non-edge detections */
+    double holdup_sum;
+    double t_first, t_last;
+} totals;
+
+static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings *s,
+                              const sp_source_info *info, totals *tot)
+{
+    const double sc = s->mm_per_px > 0 ? s->mm_per_px : 1.0;
+    const int ox = s->source.roi.w > 0 ? s->source.roi.x : 0;
+    const int oy = s->source.roi.h > 0 ? s->source.roi.y : 0;
+    for (int i = 0; i < sl->n; i++) {
+        const sp_bubble *b = &sl->bub[i];
+        double x = b->x + ox, y = b->y + oy;
+        fprintf(f,
+                "%lld,%.6f,0,%.3f,%.3f,%.6g,%.6g,%.0f,%.6g,%.6g,%.2f,%.6g,%.6g,%.4f,%d,%d,%.3f,%.3f,%.4f,%."
+                "3f,%d\n",
+                (long long)sl->index, sl->t, x, y, x * sc, (info->full_height - 1 - y) * sc, b->area_px,
+                b->major_px * sc, b->minor_px * sc, b->tilt_deg, b->d_area_px * sc, b->d_vol_px * sc,
+                b->aspect, b->edge, b->split, b->major_px, b->minor_px, b->solidity, b->contrast, b->fit);
+        if (!b->edge) {
+            double d = b->d_vol_px * sc;
+            tot->used++;
+            tot->s1 += d;
+            tot->s2 += d * d;
+            tot->s3 += d * d * d;
+            tot->s4 += d * d * d * d;
+        }
+    }
+}
+
+static const char BUBBLE_HEADER[] =
+    "frame,t_s,track,x_px,y_px,x_mm,y_mm,area_px,major_mm,minor_mm,tilt_deg,"
+    "d_area_mm,d_vol_mm,aspect,edge,split,major_px,minor_px,solidity,contrast,"
+    "fit\n";
+
+static void write_summary(FILE *f, const char *input, const char *outdir, const sp_measure_settings *s,
+                          const sp_source_info *info, const bgset *bg, const totals *tot, double fps)
+{
+    sp_jsonw j;
+    sp_jsonw_init(&j, f);
+    sp_jsonw_obj(&j);
+    sp_jsonw_kstr(&j, "tool", "spume");
+    sp_jsonw_kstr(&j, "version", SP_VERSION);
+    sp_jsonw_kstr(&j, "command", "measure");
+    sp_jsonw_kint(&j, "frames", tot->frames);
+    sp_jsonw_knum(&j, "fps", fps);
+    sp_jsonw_key(&j, "mm_per_px");
+    if (s->mm_per_px > 0)
+        sp_jsonw_num(&j, s->mm_per_px);
+    else
+        sp_jsonw_null(&j);
+    sp_jsonw_kbool(&j, "calibrated", s->mm_per_px > 0);
+    sp_jsonw_kint(&j, "tracks", 0);
+    sp_jsonw_kint(&j, "detections", tot->detections);
+    /* Means over tracks (one diameter per track) need the linker; until it runs they are null and
+     * the detection-based means below stand in, named for what they are. */
+    const char *track_keys[] = {"d10_mm", "d32_mm", "d43_mm"};
+    for (int i = 0; i < 3; i++) {
+        sp_jsonw_key(&j, track_keys[i]);
+        sp_jsonw_null(&j);
+    }
+    sp_jsonw_knum(&j, "holdup", tot->frames ? tot->holdup_sum / tot->frames : NAN);
+    sp_jsonw_kint(&j, "detections_in_stats", tot->used);
+    /* ISO 9276-2 moment-ratio means D[1,0], D[3,2], D[4,3] over non-edge detections. */
+    sp_jsonw_knum(&j, "detections_d10_mm", tot->used ? tot->s1 / tot->used : NAN);
+    sp_jsonw_knum(&j, "detections_d32_mm", tot->s2 > 0 ? tot->s3 / tot->s2 : NAN);
+    sp_jsonw_knum(&j, "detections_d43_mm", tot->s3 > 0 ? tot->s4 / tot->s3 : NAN);
+    sp_jsonw_knum(&j, "t_first_s", tot->t_first);
+    sp_jsonw_knum(&j, "t_last_s", tot->t_last);
+    sp_jsonw_kstr(&j, "output_dir", outdir);
+
+    sp_jsonw_key(&j, "input");
+    sp_identity_write(&j, input, info);
+
+    sp_jsonw_key(&j, "region");
+    sp_jsonw_obj(&j);
+    sp_jsonw_kint(&j, "x", s->source.roi.w > 0 ? s->source.roi.x : 0);
+    sp_jsonw_kint(&j, "y", s->source.roi.h > 0 ? s->source.roi.y : 0);
+    sp_jsonw_kint(&j, "width", info->width);
+    sp_jsonw_kint(&j, "height", info->height);
+    sp_jsonw_obj_end(&j);
+
+    sp_jsonw_key(&j, "settings");
+    sp_jsonw_obj(&j);
+    sp_jsonw_knum(&j, "fps_override", s->source.fps);
+    sp_jsonw_kint(&j, "start", s->source.start);
+    sp_jsonw_kint(&j, "count", s->source.count);
+    sp_jsonw_kint(&j, "step", s->source.step);
+    sp_jsonw_kstr(&j, "background", bg->mode);
+    sp_jsonw_kstr(&j, "background_image", s->bg_image);
+    sp_jsonw_kint(&j, "background_frames", bg->samples);
+    sp_jsonw_knum(&j, "background_percentile", s->bg_percentile);
+    sp_jsonw_kint(&j, "background_segments", bg->n);
+    sp_jsonw_kstr(&j, "threshold_mode", s->otsu ? "otsu" : "fixed");
+    sp_jsonw_knum(&j, "threshold", s->threshold);
+    sp_jsonw_kbool(&j, "flicker_compensation", s->flicker);
+    sp_jsonw_kbool(&j, "fill_holes", s->fill);
+    sp_jsonw_knum(&j, "min_diam_px", s->min_diam_px);
+    sp_jsonw_knum(&j, "max_diam_px", s->max_diam_px);
+    sp_jsonw_knum(&j, "fit_min_px", s->fit_min_px);
+    sp_jsonw_knum(&j, "edge_level", s->edge_level);
+    sp_jsonw_obj_end(&j);
+    sp_jsonw_obj_end(&j);
+}
+
+static int slot_store(slot *sl, const sp_detect_result *r)
+{
+    if (r->n > sl->cap) {
+        sp_bubble *nb = realloc(sl->bub, sizeof *nb * (size_t)r->n);
+        if (!nb)
+            return -1;
+        sl->bub = nb;
+        sl->cap = r->n;
+    }
+    if (r->n)
+        memcpy(sl->bub, r->bubbles, sizeof *sl->bub * (size_t)r->n);
+    sl->n = r->n;
+    sl->gain = r->gain;
+    sl->level = r->level;
+    sl->gas_px = r->gas_px;
+    return 0;
+}
+
+int sp_measure(const char *input, const char *outdir, const sp_measure_settings *s, sp_measure_report *rep,
+               sp_error *err)
+{
+    int rc;
+    sp_source *src = NULL;
+    bgset bg = {0};
+    sp_outfile ob = {0}, of = {0}, os = {0};
+    slot *slots = NULL;
+    sp_detector **det = NULL;
+    float **bgbuf = NULL;
+    totals tot = {0};
+    const int nthreads = s->threads > 0 ? s->threads : omp_get_max_threads();
+    int batch = nthreads * 4 > MAX_BATCH ? MAX_BATCH : nthreads * 4;
+
+    if ((rc = sp_outdir_prepare(outdir, err)))
+        return rc;
+    if ((rc = sp_source_open(&src, input, &s->source, err)))
+        return rc;
+    const sp_source_info *info = sp_source_get_info(src);
+    const int w = info->width, h = info->height;
+    const size_t npx = (size_t)w * (size_t)h;
+
+    if (s->bg_image)
+        rc = bg_from_file(s, w, h, &bg, err);
+    else
+        rc = bg_from_recording(input, s, info, &bg, err);
+    if (rc)
+        goto done;
+
+    sp_detect_opts dopt;
+    sp_detect_opts_default(&dopt);
+    dopt.threshold = s->threshold;
+    dopt.otsu = s->otsu;
+    dopt.flicker = s->flicker;
+    dopt.fill = s->fill;
+    dopt.measure.min_diam_px = s->min_diam_px;
+    dopt.measure.max_diam_px = s->max_diam_px;
+    dopt.measure.fit_min_px = s->fit_min_px;
+    dopt.measure.edge_level = s->edge_level;
+
+    slots = calloc((size_t)batch, sizeof *slots);
+    det = calloc((size_t)nthreads, sizeof *det);
+    bgbuf = calloc((size_t)nthreads, sizeof *bgbuf);
+    if (!slots || !det || !bgbuf) {
+        rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: out of memory");
+        goto done;
+    }
+    for (int i = 0; i < nthreads; i++) {
+        det[i] = sp_detector_new();
+        bgbuf[i] = bg.n > 1 ? malloc(sizeof(float) * npx) : NULL;
+        if (!det[i] || (bg.n > 1 && !bgbuf[i])) {
+            rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: out of memory");
+            goto done;
+        }
+    }
+
+    if ((rc = sp_outfile_open(&ob, outdir, "bubbles.csv", err)) ||
+        (rc = sp_outfile_open(&of, outdir, "frames.csv", err)))
+        goto done;
+    fputs(BUBBLE_HEADER, ob.f);
+    fputs("frame,t_s,bubbles,gain,level,gas_fraction\n", of.f);
+
+    double t0 = now_s();
+    int64_t pos = 0;
+    for (;;) {
+        int nb = 0, got = 1;
+        while (nb < batch) {
+            if ((rc = sp_source_next(src, &slots[nb].img, &slots[nb].index, &slots[nb].t, &got, err)))
+                goto done;
+            if (!got)
+                break;
+            nb++;
+        }
+        if (nb == 0)
+            break;
+#pragma omp parallel for num_threads(nthreads) schedule(dynamic, 1)
+        for (int k = 0; k < nb; k++) {
+            int tid = omp_get_thread_num();
+            slot *sl = &slots[k];
+            const float *b = bg_for(&bg, pos + k, bgbuf[tid], npx);
+            sp_detect_result r;
+            sp_error_clear(&sl->err);
+            sl->rc = sp_detect_run(det[tid], &sl->img, b, &dopt, 1, &r, &sl->err);
+            if (!sl->rc && slot_store(sl, &r))
+                sl->rc = sp_error_set(&sl->err, SP_ERR_INTERNAL, "measure: out of memory");
+        }
+        for (int k = 0; k < nb; k++) {
+            slot *sl = &slots[k];
+            if (sl->rc) {
+                rc =
+                    sp_error_set(err, sl->rc, "%s: frame %lld: %s", input, (long long)sl->index, sl->err.msg);
+                goto done;
+            }
+            if (tot.frames == 0)
+                tot.t_first = sl->t;
+            tot.t_last = sl->t;
+            tot.frames++;
+            tot.detections += sl->n;
+            double frac = sl->gas_px / (double)npx;
+            tot.holdup_sum += frac;
+            write_bubble_rows(ob.f, sl, s, info, &tot);
+            fprintf(of.f, "%lld,%.6f,%d,%.5f,%.4f,%.6f\n", (long long)sl->index, sl->t, sl->n, sl->gain,
+                    sl->level, frac);
+        }
+        pos += nb;
+        if (s->progress) {
+            sp_progress p = {"detect", pos, info->frames_selected, now_s() - t0};
+            s->progress(s->progress_ud, &p);
+        }
+    }
+    if (tot.frames == 0) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: the selection holds no frames", input);
+        goto done;
+    }
+
+    double fps = info->fps;
+    if (!(fps > 0) && tot.frames > 1 && tot.t_last > tot.t_first)
+        fps =
+            (tot.frames - 1) / (tot.t_last - tot.t_first) * (double)(s->source.step > 0 ? s->source.step : 1);
+    if ((rc = sp_outfile_open(&os, outdir, "summary.json", err)))
+        goto done;
+    write_summary(os.f, input, outdir, s, info, &bg, &tot, fps);
+    if ((rc = sp_outfile_commit(&ob, err)) || (rc = sp_outfile_commit(&of, err)) ||
+        (rc = sp_outfile_commit(&os, err)))
+        goto done;
+    if (rep) {
+        rep->frames = tot.frames;
+        rep->detections = tot.detections;
+        rep->fps = fps;
+        rep->holdup = tot.holdup_sum / tot.frames;
+        rep->width = w;
+        rep->height = h;
+    }
+done:
+    sp_outfile_abort(&ob);
+    sp_outfile_abort(&of);
+    sp_outfile_abort(&os);
+    if (slots)
+        for (int k = 0; k < batch; k++) {
+            sp_image_free(&slots[k].img);
+            free(slots[k].bub);
+        }
+    free(slots);
+    for (int i = 0; det && i < nthreads; i++) {
+        sp_detector_free(det[i]);
+        free(bgbuf[i]);
+    }
+    free(det);
+    free(bgbuf);
+    bgset_free(&bg);
+    sp_source_close(src);
+    return rc;
+}
