@@ -1,0 +1,251 @@
+/* Sub-pixel outline of one labelled component; the method is described in edges.h. */
+#include "detect/edges.h"
+
+#include <math.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Grow a buffer to hold `need` elements of `size` bytes (contents kept, amortised growth). */
+static int reserve(void **p, size_t *cap, size_t need, size_t size, sp_error *err)
+{
+    if (need <= *cap)
+        return SP_OK;
+    if (need > SIZE_MAX / size / 2)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: workspace size overflow");
+    size_t n = need + need / 2;
+    void *q = realloc(*p, n * size);
+    if (!q)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: out of memory for %zu workspace entries", n);
+    *p = q;
+    *cap = n;
+    return SP_OK;
+}
+
+void sp_edges_release(sp_edges *e)
+{
+    if (!e)
+        return;
+    free(e->ext);
+    free(e->stack);
+    free(e->vals);
+    free(e->xy);
+    memset(e, 0, sizeof *e);
+}
+
+static inline int lab_at(const int32_t *labels, int w, int h, int x, int y)
+{
+    if (x < 0 || y < 0 || x >= w || y >= h)
+        return -1;
+    return labels[(size_t)y * (size_t)w + (size_t)x];
+}
+
+int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int label, const sp_component *c,
+                      sp_error *err)
+{
+    if (c->x0 < 0 || c->y0 < 0 || c->x1 >= w || c->y1 >= h || c->x0 > c->x1 || c->y0 > c->y1)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d bounding box outside the frame",
+                            label);
+    e->wx0 = c->x0 - 1;
+    e->wy0 = c->y0 - 1;
+    e->ww = c->x1 - c->x0 + 3;
+    e->wh = c->y1 - c->y0 + 3;
+    size_t nw = (size_t)e->ww * (size_t)e->wh;
+    int rc = reserve((void **)&e->ext, &e->ext_cap, nw, 1, err);
+    if (!rc)
+        rc = reserve((void **)&e->stack, &e->stack_cap, nw, sizeof(int32_t), err);
+    if (rc)
+        return rc;
+    for (int y = 0; y < e->wh; y++)
+        for (int x = 0; x < e->ww; x++)
+            e->ext[(size_t)y * e->ww + x] = lab_at(labels, w, h, e->wx0 + x, e->wy0 + y) == label ? 0 : 1;
+    /* 4-connected flood of non-component cells from the window frame: the dual of the 8-connected
+     * component, so a diagonal gap in the outline does not leak into an enclosed region. */
+    size_t sp = 0;
+    for (int y = 0; y < e->wh; y++)
+        for (int x = 0; x < e->ww; x++)
+            if (y == 0 || x == 0 || y == e->wh - 1 || x == e->ww - 1) {
+                size_t i = (size_t)y * e->ww + x;
+                if (e->ext[i] == 1) {
+                    e->ext[i] = 2;
+                    e->stack[sp++] = (int32_t)i;
+                }
+            }
+    while (sp) {
+        int32_t i = e->stack[--sp];
+        int x = i % e->ww, y = i / e->ww;
+        const int nb[4][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1}};
+        for (int k = 0; k < 4; k++) {
+            int xx = x + nb[k][0], yy = y + nb[k][1];
+            if (xx < 0 || yy < 0 || xx >= e->ww || yy >= e->wh)
+                continue;
+            size_t j = (size_t)yy * e->ww + xx;
+            if (e->ext[j] == 1) {
+                e->ext[j] = 2;
+                e->stack[sp++] = (int32_t)j;
+            }
+        }
+    }
+    return SP_OK;
+}
+
+static inline int ext_at(const sp_edges *e, int x, int y)
+{
+    int wx = x - e->wx0, wy = y - e->wy0;
+    if (wx < 0 || wy < 0 || wx >= e->ww || wy >= e->wh)
+        return 2;
+    return e->ext[(size_t)wy * e->ww + wx];
+}
+
+static int cmp_float(const void *a, const void *b)
+{
+    float x = *(const float *)a, y = *(const float *)b;
+    return (x > y) - (x < y);
+}
+
+/* q-quantile (0..1) by sorting: deterministic and exact; the arrays are component-sized. */
+static float quantile(float *v, size_t n, double q)
+{
+    qsort(v, n, sizeof *v, cmp_float);
+    size_t k = (size_t)(q * (double)(n - 1) + 0.5);
+    return v[k < n ? k : n - 1];
+}
+
+static const int dir4[4][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1}};
+
+int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
+                    const sp_component *c, sp_error *err)
+{
+    int w = v->frame->width, h = v->frame->height;
+    int rc = reserve((void **)&e->vals, &e->vals_cap, (size_t)c->area, sizeof(float), err);
+    if (rc)
+        return rc;
+
+    size_t nv = 0;
+    float nmin = 1e30f;
+    for (int y = c->y0; y <= c->y1; y++)
+        for (int x = c->x0; x <= c->x1; x++)
+            if (labels[(size_t)y * w + x] == label && nv < e->vals_cap) {
+                float t = sp_view_norm(v, x, y);
+                e->vals[nv++] = t;
+                if (t < nmin)
+                    nmin = t;
+            }
+    if (nv == 0)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has no pixels", label);
+    e->n_min = nmin;
+    e->n_dark = quantile(e->vals, nv, 0.2);
+
+    nv = 0;
+    for (int y = c->y0; y <= c->y1; y++)
+        for (int x = c->x0; x <= c->x1; x++) {
+            if (labels[(size_t)y * w + x] != label)
+                continue;
+            for (int d = 0; d < 4; d++) {
+                int dx = dir4[d][0], dy = dir4[d][1];
+                if (ext_at(e, x + dx, y + dy) != 2 || lab_at(labels, w, h, x + dx, y + dy) < 0)
+                    continue;
+                for (int k = 2; k <= 8; k++) {
+                    int xx = x + k * dx, yy = y + k * dy;
+                    if (lab_at(labels, w, h, xx, yy) != 0)
+                        break; /* left the frame or met another bubble */
+                    rc = reserve((void **)&e->vals, &e->vals_cap, nv + 1, sizeof(float), err);
+                    if (rc)
+                        return rc;
+                    e->vals[nv++] = sp_view_norm(v, xx, yy);
+                }
+            }
+        }
+    /* No visible surroundings: the background model's own light level. */
+    e->n_light = nv ? quantile(e->vals, nv, 0.5) : 1.0f;
+    return SP_OK;
+}
+
+int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
+                    const sp_component *c, double level, sp_error *err)
+{
+    int w = v->frame->width, h = v->frame->height;
+    e->n = 0;
+    for (int y = c->y0; y <= c->y1; y++)
+        for (int x = c->x0; x <= c->x1; x++) {
+            if (labels[(size_t)y * w + x] != label)
+                continue;
+            for (int d = 0; d < 4; d++) {
+                int dx = dir4[d][0], dy = dir4[d][1];
+                if (ext_at(e, x + dx, y + dy) != 2 || lab_at(labels, w, h, x + dx, y + dy) < 0)
+                    continue;
+                /* Profile s[k + 3] = n(p + k·d), k = −3..4; NaN marks samples off the frame. */
+                double s[8];
+                for (int k = -3; k <= 4; k++) {
+                    int xx = x + k * dx, yy = y + k * dy;
+                    s[k + 3] =
+                        (xx < 0 || yy < 0 || xx >= w || yy >= h) ? NAN : (double)sp_view_norm(v, xx, yy);
+                }
+                /* Nearest upward crossing to the p–q step: segments 0, −1, 1, −2, 2, −3, 3. */
+                static const int order[7] = {0, -1, 1, -2, 2, -3, 3};
+                for (int o = 0; o < 7; o++) {
+                    int k = order[o];
+                    double s0 = s[k + 3], s1 = s[k + 4];
+                    if (!(s0 < level && s1 >= level))
+                        continue; /* also rejects NaN */
+                    double t = k + (level - s0) / (s1 - s0);
+                    size_t need = 2 * ((size_t)e->n + 1);
+                    int rc = reserve((void **)&e->xy, &e->xy_cap, need, sizeof(double), err);
+                    if (rc)
+                        return rc;
+                    e->xy[2 * e->n] = x + t * dx;
+                    e->xy[2 * e->n + 1] = y + t * dy;
+                    e->n++;
+                    break;
+                }
+            }
+        }
+    return SP_OK;
+}
+
+double sp_edges_area(const sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
+                     const sp_component *c)
+{
+    int w = v->frame->width, h = v->frame->height;
+    double step = (double)e->n_light - (double)e->n_dark;
+    if (!(step > 1e-3))
+        return (double)c->area;
+    double area = 0;
+    /* Walk the padded window: the exterior band lies at most 1 px outside the bounding box. */
+    for (int wy = 0; wy < e->wh; wy++)
+        for (int wx = 0; wx < e->ww; wx++) {
+            int x = e->wx0 + wx, y = e->wy0 + wy;
+            int state = e->ext[(size_t)wy * e->ww + wx];
+            if (state == 1) {
+                area += 1.0; /* enclosed: part of the bubble's projection */
+                continue;
+            }
+            int lab = lab_at(labels, w, h, x, y);
+            if (lab < 0)
+                continue;
+            /* Is the pixel on the band: next to a pixel of the other side? */
+            int band = 0;
+            for (int ddy = -1; ddy <= 1 && !band; ddy++)
+                for (int ddx = -1; ddx <= 1 && !band; ddx++) {
+                    if (!ddx && !ddy)
+                        continue;
+                    int s2 = ext_at(e, x + ddx, y + ddy);
+                    band = state == 0 ? s2 == 2 : s2 == 0;
+                }
+            if (state == 0 && !band) {
+                area += 1.0;
+                continue;
+            }
+            if (!band || (state == 2 && lab != 0))
+                continue; /* far exterior, or another bubble's pixel */
+            double cov = ((double)e->n_light - (double)sp_view_norm(v, x, y)) / step;
+            /* Loose clamp only: clamping at 0 and 1 would turn the noise of the band into a bias. */
+            if (cov < -0.25)
+                cov = -0.25;
+            if (cov > 1.25)
+                cov = 1.25;
+            area += cov;
+        }
+    (void)label;
+    return area;
+}
