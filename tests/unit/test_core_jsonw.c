@@ -4,6 +4,7 @@
 #include "core/outfile.h"
 
 #include <math.h>
+#include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <unistd.h>
