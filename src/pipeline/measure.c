@@ -305,7 +305,6 @@ static void write_summary(FILE *f, const char *input, const char *outdir, const 
     sp_jsonw_knum(&j, "detections_d43_mm", tot->s3 > 0 ? tot->s4 / tot->s3 : NAN);
     sp_jsonw_knum(&j, "t_first_s", tot->t_first);
     sp_jsonw_knum(&j, "t_last_s", tot->t_last);
-    sp_jsonw_kstr(&j, "output_dir", outdir);
 
     sp_jsonw_key(&j, "input");
     sp_identity_write(&j, input, info);
