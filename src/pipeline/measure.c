@@ -271,7 +271,7 @@ static const char BUBBLE_HEADER[] =
     "d_area_mm,d_vol_mm,aspect,edge,split,major_px,minor_px,solidity,contrast,"
     "fit\n";
 
-static void write_summary(FILE *f, const char *input, const char *outdir, const sp_measure_settings *s,
+static void write_summary(FILE *f, const char *input, const sp_measure_settings *s,
                           const sp_source_info *info, const bgset *bg, const totals *tot, double fps)
 {
     sp_jsonw j;
@@ -479,7 +479,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
             (tot.frames - 1) / (tot.t_last - tot.t_first) * (double)(s->source.step > 0 ? s->source.step : 1);
     if ((rc = sp_outfile_open(&os, outdir, "summary.json", err)))
         goto done;
-    write_summary(os.f, input, outdir, s, info, &bg, &tot, fps);
+    write_summary(os.f, input, s, info, &bg, &tot, fps);
     if ((rc = sp_outfile_commit(&ob, err)) || (rc = sp_outfile_commit(&of, err)) ||
         (rc = sp_outfile_commit(&os, err)))
         goto done;
