@@ -1,0 +1,70 @@
+/* Frame-source back ends shared inside the io layer: video files through libavformat/libavcodec,
+ * numbered still frames through libpng / libjpeg / libavcodec, and the grey conversion rules that
+ * all of them share. Nothing here is part of the public API (src/spume.h). */
+#ifndef SP_IO_SOURCE_INTERNAL_H
+#define SP_IO_SOURCE_INTERNAL_H
+
+#include "spume.h"
+
+#include <stdint.h>
+
+struct AVFrame;
+
+/* Luma of an RGB sample with the integer weights Pillow uses for its RGB -> 'L' conversion
+ * (ITU-R BT.601 weights 0.299/0.587/0.114 scaled by 2^16, rounded to nearest: the sum is exactly
+ * 65536, so white maps to white). Checked numerically against Pillow 9.4 by
+ * tests/ref/test_decode_pillow.py. The same weights serve 16-bit samples (documented choice). */
+static inline unsigned sp_luma_rgb(unsigned r, unsigned g, unsigned b)
+{
+    return (unsigned)(((uint64_t)r * 19595u + (uint64_t)g * 38470u + (uint64_t)b * 7471u + 32768u) >> 16);
+}
+
+/* Silence FFmpeg's logger (process-wide; done once). */
+void sp_ffmpeg_quiet(void);
+/* FFmpeg error code in words, into buf. */
+const char *sp_averr(int code, char *buf, size_t size);
+
+/* Grey conversion of decoded FFmpeg frames. Planar or packed YUV / grey formats give their luma
+ * component as is (8-bit -> 1 byte; 9..16-bit -> 2 bytes, `bits` = the format's depth, values in the
+ * low bits); every other format (RGB, palette, Bayer, 1-bit, float) is converted by swscale to
+ * RGB24 or RGB48 and then to luma with sp_luma_rgb, so colour is treated alike in every reader. */
+typedef struct sp_frameconv {
+    struct SwsContext *sws;
+    uint8_t *rgb[4];
+    int rgb_linesize[4];
+    int rgb_w, rgb_h, rgb_fmt;
+} sp_frameconv;
+
+/* Convert f into img (allocated or reused). `what` names the file in errors. */
+int sp_frameconv_run(sp_frameconv *c, const struct AVFrame *f, sp_image *img, const char *what,
+                     sp_error *err);
+/* Sample size (1 or 2) and significant bits the conversion will give for a pixel format. */
+void sp_frameconv_depth(int pix_fmt, int *bytes, int *bits);
+void sp_frameconv_free(sp_frameconv *c);
+
+/* ---- video back end (video.c). Opening decodes the first frame to learn the real frame format. */
+typedef struct sp_video sp_video;
+/* Fills info->full_width/full_height/bytes/bits/fps/frames_total/format. */
+int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_error *err);
+/* Next frame of the recording. want == 0: the frame is decoded (as it must be) but not converted.
+ * *t_s: best-effort timestamp relative to the first decoded frame. *got = 0 at the end. */
+int sp_video_next(sp_video *v, int want, sp_image *full, double *t_s, int *got, sp_error *err);
+void sp_video_close(sp_video *v);
+
+/* ---- still frames (stills.c). */
+enum { SP_STILLS_DIR, SP_STILLS_PATTERN, SP_STILLS_SINGLE };
+typedef struct sp_stills sp_stills;
+/* Fills info like sp_video_open (fps left 0: stills carry no timing). Reads the first frame to learn
+ * the size. */
+int sp_stills_open(sp_stills **out, const char *path, int kind, sp_source_info *info, sp_error *err);
+/* want == 0: skip the file without reading it. */
+int sp_stills_next(sp_stills *s, int want, sp_image *full, int *got, sp_error *err);
+void sp_stills_close(sp_stills *s);
+/* Read one still image of any supported format (sniffed from its first bytes); format names the
+ * decoder used ("png", "jpeg", "tiff", ...), may be NULL. */
+int sp_still_read(const char *path, sp_image *img, char *format, size_t format_size, sp_error *err);
+/* Does a printf conversion like %d / %05d appear in path? Returns 1 for exactly one valid
+ * conversion, 0 for none, -1 for a malformed pattern. */
+int sp_stills_is_pattern(const char *path);
+
+#endif

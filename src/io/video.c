@@ -1,0 +1,418 @@
+/* Video files through libavformat / libavcodec: the best video stream, decoded with threads, as grey
+ * frames at native depth; plus the grey conversion shared with still images decoded by FFmpeg. */
+#include "io/source_internal.h"
+
+#include <libavcodec/avcodec.h>
+#include <libavformat/avformat.h>
+#include <libavutil/imgutils.h>
+#include <libavutil/intreadwrite.h>
+#include <libavutil/pixdesc.h>
+#include <libswscale/swscale.h>
+
+#include <math.h>
+#include <pthread.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Packets the demux-only counting pass reads at most before giving up (frames_total = -1). */
+#define COUNT_PACKETS_MAX 100000000LL
+
+static pthread_once_t quiet_once = PTHREAD_ONCE_INIT;
+
+static void quiet_init(void)
+{
+    av_log_set_level(AV_LOG_QUIET);
+}
+
+/* av_log_set_level is process-wide state: the library never prints, so FFmpeg's own messages are
+ * switched off once, the first time a source is opened; failures reach the caller as sp_error. */
+void sp_ffmpeg_quiet(void)
+{
+    pthread_once(&quiet_once, quiet_init);
+}
+
+const char *sp_averr(int code, char *buf, size_t size)
+{
+    if (av_strerror(code, buf, size) < 0)
+        snprintf(buf, size, "FFmpeg error %d", code);
+    return buf;
+}
+
+/* ---------------------------------------------------------------- grey conversion */
+
+/* Formats whose first component is luma (or grey) stored as whole bytes or 16-bit words. */
+static int luma_direct(const AVPixFmtDescriptor *d)
+{
+    if (!d || d->nb_components < 1)
+        return 0;
+    if (d->flags & (AV_PIX_FMT_FLAG_RGB | AV_PIX_FMT_FLAG_PAL | AV_PIX_FMT_FLAG_BITSTREAM |
+                    AV_PIX_FMT_FLAG_FLOAT | AV_PIX_FMT_FLAG_HWACCEL | AV_PIX_FMT_FLAG_BAYER))
+        return 0;
+    if (strncmp(d->name, "xyz", 3) == 0) /* first component is CIE X, not luma */
+        return 0;
+    const AVComponentDescriptor *c = &d->comp[0];
+    int sb = c->depth > 8 ? 2 : 1;
+    return c->plane == 0 && c->depth >= 1 && c->depth <= 16 && c->step >= sb && c->shift + c->depth <= 8 * sb;
+}
+
+static int rgb_depth(const AVPixFmtDescriptor *d)
+{
+    int depth = 8;
+    for (int i = 0; d && i < d->nb_components; i++)
+        if (d->comp[i].depth > depth)
+            depth = d->comp[i].depth;
+    if (d && (d->flags & AV_PIX_FMT_FLAG_PAL))
+        depth = 8;
+    return depth;
+}
+
+void sp_frameconv_depth(int pix_fmt, int *bytes, int *bits)
+{
+    const AVPixFmtDescriptor *d = av_pix_fmt_desc_get((enum AVPixelFormat)pix_fmt);
+    if (luma_direct(d)) {
+        *bits = d->comp[0].depth;
+        *bytes = *bits > 8 ? 2 : 1;
+    } else {
+        *bytes = rgb_depth(d) > 8 ? 2 : 1;
+        *bits = *bytes * 8;
+    }
+}
+
+int sp_frameconv_run(sp_frameconv *c, const AVFrame *f, sp_image *img, const char *what, sp_error *err)
+{
+    const AVPixFmtDescriptor *d = av_pix_fmt_desc_get((enum AVPixelFormat)f->format);
+    if (!d)
+        return sp_error_set(err, SP_ERR_INPUT, "%s: decoded frame has no pixel format", what);
+    int rc = sp_check_dims(f->width, f->height, what, err);
+    if (rc)
+        return rc;
+    int bytes, bits;
+    sp_frameconv_depth(f->format, &bytes, &bits);
+    rc = sp_image_alloc(img, f->width, f->height, bytes, err);
+    if (rc)
+        return rc;
+    img->bits = bits;
+
+    if (luma_direct(d)) {
+        const AVComponentDescriptor *cd = &d->comp[0];
+        int be = (d->flags & AV_PIX_FMT_FLAG_BE) != 0;
+        unsigned mask = (1u << cd->depth) - 1u;
+        for (int y = 0; y < f->height; y++) {
+            const uint8_t *src = f->data[0] + (ptrdiff_t)y * f->linesize[0] + cd->offset;
+            uint8_t *dst = (uint8_t *)img->data + (ptrdiff_t)y * img->stride;
+            if (bytes == 1) {
+                if (cd->step == 1 && cd->shift == 0) {
+                    memcpy(dst, src, (size_t)f->width);
+                } else {
+                    for (int x = 0; x < f->width; x++)
+                        dst[x] = (uint8_t)((src[(ptrdiff_t)x * cd->step] >> cd->shift) & mask);
+                }
+            } else {
+                uint16_t *d16 = (uint16_t *)dst;
+                for (int x = 0; x < f->width; x++) {
+                    const uint8_t *p = src + (ptrdiff_t)x * cd->step;
+                    unsigned v = be ? AV_RB16(p) : AV_RL16(p);
+                    d16[x] = (uint16_t)((v >> cd->shift) & mask);
+                }
+            }
+        }
+        return SP_OK;
+    }
+
+    /* Everything else goes through RGB so that colour maps to grey by one documented rule. */
+    enum AVPixelFormat dst_fmt = bytes == 2 ? AV_PIX_FMT_RGB48 : AV_PIX_FMT_RGB24;
+    if (!c->rgb[0] || c->rgb_w != f->width || c->rgb_h != f->height || c->rgb_fmt != (int)dst_fmt) {
+        av_freep(&c->rgb[0]);
+        if (av_image_alloc(c->rgb, c->rgb_linesize, f->width, f->height, dst_fmt, 64) < 0)
+            return sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory for a %dx%d frame", what, f->width,
+                                f->height);
+        c->rgb_w = f->width;
+        c->rgb_h = f->height;
+        c->rgb_fmt = dst_fmt;
+    }
+    c->sws =
+        sws_getCachedContext(c->sws, f->width, f->height, (enum AVPixelFormat)f->format, f->width, f->height,
+                             dst_fmt, SWS_BILINEAR | SWS_ACCURATE_RND | SWS_FULL_CHR_H_INT, NULL, NULL, NULL);
+    if (!c->sws)
+        return sp_error_set(err, SP_ERR_INPUT, "%s: cannot convert pixel format %s to grey", what, d->name);
+    if (sws_scale(c->sws, (const uint8_t *const *)f->data, f->linesize, 0, f->height, c->rgb,
+                  c->rgb_linesize) != f->height)
+        return sp_error_set(err, SP_ERR_INTERNAL, "%s: pixel format conversion from %s failed", what,
+                            d->name);
+    for (int y = 0; y < f->height; y++) {
+        const uint8_t *src = c->rgb[0] + (ptrdiff_t)y * c->rgb_linesize[0];
+        uint8_t *dst = (uint8_t *)img->data + (ptrdiff_t)y * img->stride;
+        if (bytes == 1) {
+            for (int x = 0; x < f->width; x++)
+                dst[x] = (uint8_t)sp_luma_rgb(src[3 * x], src[3 * x + 1], src[3 * x + 2]);
+        } else {
+            const uint16_t *s16 = (const uint16_t *)src; /* RGB48 is native-endian */
+            uint16_t *d16 = (uint16_t *)dst;
+            for (int x = 0; x < f->width; x++)
+                d16[x] = (uint16_t)sp_luma_rgb(s16[3 * x], s16[3 * x + 1], s16[3 * x + 2]);
+        }
+    }
+    return SP_OK;
+}
+
+void sp_frameconv_free(sp_frameconv *c)
+{
+    if (!c)
+        return;
+    sws_freeContext(c->sws);
+    av_freep(&c->rgb[0]);
+    memset(c, 0, sizeof *c);
+}
+
+/* ---------------------------------------------------------------- video reader */
+
+struct sp_video {
+    char *path;
+    AVFormatContext *fmt;
+    AVCodecContext *dec;
+    AVPacket *pkt;
+    AVFrame *frame;
+    sp_frameconv conv;
+    int stream;
+    AVRational tb;
+    double fps_guess;   /* for frames without any timestamp */
+    int64_t first_ts;   /* best-effort timestamp of the first decoded frame, or AV_NOPTS_VALUE */
+    int64_t decoded;    /* frames decoded so far */
+    int64_t expected;   /* frames the container announces, -1 if it does not */
+    int pending;        /* frame holds a decoded frame not yet delivered */
+    int flushing, done; /* end of file reached / decoder drained */
+    int width, height, bytes;
+};
+
+/* Decode the next frame into v->frame; *got = 0 at the end of the stream. */
+static int decode_one(sp_video *v, int *got, sp_error *err)
+{
+    char eb[128];
+    *got = 0;
+    if (v->done)
+        return SP_OK;
+    for (;;) {
+        int ret = avcodec_receive_frame(v->dec, v->frame);
+        if (ret == 0) {
+            *got = 1;
+            return SP_OK;
+        }
+        if (ret == AVERROR_EOF) {
+            v->done = 1;
+            /* A container that announces its frame count and ends early was cut short. */
+            if (v->expected > 0 && v->decoded < v->expected)
+                return sp_error_set(err, SP_ERR_INPUT,
+                                    "%s: video ends after %lld of the %lld frames its header announces "
+                                    "(truncated file?)",
+                                    v->path, (long long)v->decoded, (long long)v->expected);
+            return SP_OK;
+        }
+        if (ret != AVERROR(EAGAIN))
+            return sp_error_set(err, SP_ERR_INPUT, "%s: cannot decode frame %lld (%s)", v->path,
+                                (long long)v->decoded, sp_averr(ret, eb, sizeof eb));
+        if (v->flushing)
+            return sp_error_set(err, SP_ERR_INTERNAL, "%s: decoder stalled while draining", v->path);
+        ret = av_read_frame(v->fmt, v->pkt);
+        if (ret == AVERROR_EOF) {
+            v->flushing = 1;
+            ret = avcodec_send_packet(v->dec, NULL);
+            if (ret < 0 && ret != AVERROR_EOF)
+                return sp_error_set(err, SP_ERR_INPUT, "%s: cannot flush the decoder (%s)", v->path,
+                                    sp_averr(ret, eb, sizeof eb));
+            continue;
+        }
+        if (ret < 0)
+            return sp_error_set(err, SP_ERR_INPUT, "%s: cannot read the video after frame %lld (%s)", v->path,
+                                (long long)v->decoded, sp_averr(ret, eb, sizeof eb));
+        if (v->pkt->stream_index != v->stream) {
+            av_packet_unref(v->pkt);
+            continue;
+        }
+        ret = avcodec_send_packet(v->dec, v->pkt);
+        av_packet_unref(v->pkt);
+        if (ret < 0 && ret != AVERROR(EAGAIN))
+            return sp_error_set(err, SP_ERR_INPUT, "%s: cannot decode frame %lld (%s)", v->path,
+                                (long long)v->decoded, sp_averr(ret, eb, sizeof eb));
+    }
+}
+
+/* Count the stream's packets without decoding (one packet is one frame for the video codecs in
+ * use); -1 if the file cannot be read to the end or is implausibly long. */
+static int64_t count_packets(const char *path, int stream)
+{
+    AVFormatContext *fmt = NULL;
+    AVPacket *pkt = av_packet_alloc();
+    int64_t n = 0;
+    if (!pkt || avformat_open_input(&fmt, path, NULL, NULL) < 0) {
+        n = -1;
+        goto done;
+    }
+    for (;;) {
+        int ret = av_read_frame(fmt, pkt);
+        if (ret == AVERROR_EOF)
+            break;
+        if (ret < 0 || n >= COUNT_PACKETS_MAX) {
+            n = -1;
+            break;
+        }
+        if (pkt->stream_index == stream)
+            n++;
+        av_packet_unref(pkt);
+    }
+done:
+    av_packet_free(&pkt);
+    avformat_close_input(&fmt);
+    return n;
+}
+
+static double q2d_or0(AVRational r)
+{
+    return (r.num > 0 && r.den > 0) ? av_q2d(r) : 0.0;
+}
+
+int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_error *err)
+{
+    char eb[128];
+    int rc = SP_OK;
+    *out = NULL;
+    sp_ffmpeg_quiet();
+    sp_video *v = calloc(1, sizeof *v);
+    if (!v || !(v->path = strdup(path)))
+        goto oom;
+    v->first_ts = AV_NOPTS_VALUE;
+    v->expected = -1;
+    int ret = avformat_open_input(&v->fmt, path, NULL, NULL);
+    if (ret < 0) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot open as a video (%s)", path,
+                          sp_averr(ret, eb, sizeof eb));
+        goto fail;
+    }
+    ret = avformat_find_stream_info(v->fmt, NULL);
+    if (ret < 0) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot read stream information (%s)", path,
+                          sp_averr(ret, eb, sizeof eb));
+        goto fail;
+    }
+    const AVCodec *codec = NULL;
+    ret = av_find_best_stream(v->fmt, AVMEDIA_TYPE_VIDEO, -1, -1, &codec, 0);
+    if (ret < 0 || !codec) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: no decodable video stream (%s)", path,
+                          ret < 0 ? sp_averr(ret, eb, sizeof eb) : "no decoder for its codec");
+        goto fail;
+    }
+    v->stream = ret;
+    AVStream *st = v->fmt->streams[v->stream];
+    v->tb = st->time_base;
+    /* Never trust the header: check the announced size before the decoder allocates anything. */
+    if (st->codecpar->width || st->codecpar->height) {
+        rc = sp_check_dims(st->codecpar->width, st->codecpar->height, path, err);
+        if (rc)
+            goto fail;
+    }
+    v->dec = avcodec_alloc_context3(codec);
+    if (!v->dec || !(v->pkt = av_packet_alloc()) || !(v->frame = av_frame_alloc()))
+        goto oom;
+    ret = avcodec_parameters_to_context(v->dec, st->codecpar);
+    if (ret < 0)
+        goto oom;
+    v->dec->pkt_timebase = st->time_base;
+    v->dec->max_pixels = SP_MAX_PIXELS;
+    /* Frame or slice threading; frames still come out in order, so results do not depend on it. */
+    v->dec->thread_count = 0;
+    v->dec->thread_type = FF_THREAD_FRAME | FF_THREAD_SLICE;
+    ret = avcodec_open2(v->dec, codec, NULL);
+    if (ret < 0) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot open the %s decoder (%s)", path, codec->name,
+                          sp_averr(ret, eb, sizeof eb));
+        goto fail;
+    }
+
+    double avg = q2d_or0(st->avg_frame_rate), rfr = q2d_or0(st->r_frame_rate);
+    v->fps_guess = avg > 0 ? avg : rfr;
+    v->expected = st->nb_frames > 0 ? st->nb_frames : -1;
+
+    int got = 0;
+    rc = decode_one(v, &got, err);
+    if (rc)
+        goto fail;
+    if (!got) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: the video holds no decodable frame", path);
+        goto fail;
+    }
+    rc = sp_check_dims(v->frame->width, v->frame->height, path, err);
+    if (rc)
+        goto fail;
+    v->pending = 1;
+    v->width = v->frame->width;
+    v->height = v->frame->height;
+    sp_frameconv_depth(v->frame->format, &v->bytes, &info->bits);
+    info->full_width = v->width;
+    info->full_height = v->height;
+    info->bytes = v->bytes;
+    /* Constant rate when the average and the container's base rate agree; else variable (0). */
+    info->fps = (avg > 0 && rfr > 0 && fabs(avg - rfr) > 1e-3 * rfr) ? 0.0 : v->fps_guess;
+    info->frames_total = v->expected > 0 ? v->expected : count_packets(path, v->stream);
+    snprintf(info->kind, sizeof info->kind, "video");
+    snprintf(info->format, sizeof info->format, "%s", codec->name);
+    *out = v;
+    return SP_OK;
+oom:
+    rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory opening the video", path);
+fail:
+    sp_video_close(v);
+    return rc;
+}
+
+int sp_video_next(sp_video *v, int want, sp_image *full, double *t_s, int *got, sp_error *err)
+{
+    *got = 0;
+    if (!v->pending) {
+        av_frame_unref(v->frame);
+        int g = 0;
+        int rc = decode_one(v, &g, err);
+        if (rc || !g)
+            return rc;
+    }
+    v->pending = 0;
+    AVFrame *f = v->frame;
+    int64_t index = v->decoded++;
+    if (f->width != v->width || f->height != v->height)
+        return sp_error_set(err, SP_ERR_INPUT, "%s: frame %lld is %dx%d but earlier frames are %dx%d",
+                            v->path, (long long)index, f->width, f->height, v->width, v->height);
+    int bytes, bits;
+    sp_frameconv_depth(f->format, &bytes, &bits);
+    if (bytes != v->bytes)
+        return sp_error_set(err, SP_ERR_INPUT, "%s: frame %lld changes sample depth mid-stream (%s)", v->path,
+                            (long long)index, av_get_pix_fmt_name((enum AVPixelFormat)f->format));
+
+    /* Best-effort timestamps relative to the first frame (variable frame rate kept); frames without
+     * any timestamp fall back to index / stream rate. */
+    int64_t ts = f->best_effort_timestamp;
+    if (index == 0)
+        v->first_ts = ts;
+    if (ts != AV_NOPTS_VALUE && v->first_ts != AV_NOPTS_VALUE)
+        *t_s = (double)(ts - v->first_ts) * av_q2d(v->tb);
+    else
+        *t_s = v->fps_guess > 0 ? (double)index / v->fps_guess : 0.0;
+
+    if (want) {
+        int rc = sp_frameconv_run(&v->conv, f, full, v->path, err);
+        if (rc)
+            return rc;
+    }
+    *got = 1;
+    return SP_OK;
+}
+
+void sp_video_close(sp_video *v)
+{
+    if (!v)
+        return;
+    sp_frameconv_free(&v->conv);
+    av_frame_free(&v->frame);
+    av_packet_free(&v->pkt);
+    avcodec_free_context(&v->dec);
+    avformat_close_input(&v->fmt);
+    free(v->path);
+    free(v);
+}
