@@ -1,0 +1,371 @@
+/* Scenarios: where the bubbles are, how they move and look. Every random choice is a pure
+ * function of (seed, stream, index), so a scene does not depend on the order it is built in. */
+#include "synth/scenes.h"
+#include "synth/rng.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define PI 3.14159265358979323846
+#define MAX_TRACKS 2000000
+
+static const char *const scenario_names[] = {"sizing", "plume", NULL};
+
+static const char desc_sizing[] = "isolated still bubbles, diameters log-uniform 4-160 px, some out of focus "
+                                  "or cut by the frame edge, for checking sizing";
+static const char desc_plume[] = "rising plume of 1-5 mm bubbles from three nozzles below the frame, "
+                                 "0.2-0.3 m/s with lateral wobble, for checking tracking";
+
+const char *const *sp_synth_scenarios(void)
+{
+    return scenario_names;
+}
+
+const char *sp_synth_describe(const char *scenario)
+{
+    if (!scenario)
+        return NULL;
+    if (strcmp(scenario, "sizing") == 0)
+        return desc_sizing;
+    if (strcmp(scenario, "plume") == 0)
+        return desc_plume;
+    return NULL;
+}
+
+void synth_track_state(const synth_track *tr, double t, synth_state *st)
+{
+    double dt = t - tr->t0;
+    double ph = 2.0 * PI * tr->wob_hz * dt + tr->wob_ph;
+    st->x = tr->x0 + tr->vx * dt + tr->wob_amp * sin(ph);
+    st->y = tr->y0 + tr->vy * dt;
+    st->vx = tr->vx + tr->wob_amp * 2.0 * PI * tr->wob_hz * cos(ph);
+    st->vy = tr->vy;
+    /* Zigzagging bubbles turn their broad face to the motion: the major axis leans against the
+     * lateral velocity, and the shape flattens twice per cycle. */
+    double e = tr->aspect + tr->aspect_amp * sin(2.0 * ph);
+    if (e > 1.0)
+        e = 1.0;
+    st->major = tr->d_vol_px * pow(e, -1.0 / 3.0); /* keeps major²·minor = d_vol³ */
+    st->minor = st->major * e;
+    double tilt = tr->tilt0 - tr->tilt_amp * cos(ph);
+    while (tilt > 90.0)
+        tilt -= 180.0;
+    while (tilt <= -90.0)
+        tilt += 180.0;
+    st->tilt_deg = tilt;
+}
+
+void synth_track_look(const synth_scene *sc, const synth_track *tr, const synth_state *st, sp_bubble_look *lk)
+{
+    memset(lk, 0, sizeof *lk);
+    lk->x_px = st->x;
+    lk->y_px = st->y;
+    lk->a_px = 0.5 * st->major;
+    lk->b_px = 0.5 * st->minor;
+    lk->tilt_deg = st->tilt_deg;
+    lk->band = tr->band;
+    lk->shoulder = tr->shoulder;
+    double r = 0.5 * sqrt(st->major * st->minor);
+    lk->shoulder_px = fmax(0.8, 0.05 * r);
+    lk->spot = tr->spot;
+    lk->spot_frac = tr->spot_frac;
+    lk->spot_u = tr->spot_u;
+    lk->spot_v = tr->spot_v;
+    double az = fabs(tr->z_mm);
+    /* Small bubbles image with weak contrast (diffraction and finite resolution fill them in);
+     * far from focus the shadow also fades as the aperture sees around it. Model values. */
+    double c_size = 0.55 + 0.45 * (1.0 - exp(-2.0 * r / 12.0));
+    double zc = 4.0 * sc->dof_mm;
+    double c_z = 1.0 / (1.0 + (az / zc) * (az / zc));
+    lk->contrast = c_size * c_z;
+    lk->blur_px = sc->blur_px_per_mm * az;
+    lk->motion_dx = st->vx * sc->exposure_s;
+    lk->motion_dy = st->vy * sc->exposure_s;
+}
+
+int synth_state_visible(const synth_scene *sc, const synth_state *st)
+{
+    double hx, hy;
+    sp_ellipse_extent(0.5 * st->major, 0.5 * st->minor, st->tilt_deg, &hx, &hy);
+    return st->x + hx > 0.0 && st->x - hx < sc->width - 1.0 && st->y + hy > 0.0 &&
+           st->y - hy < sc->height - 1.0;
+}
+
+/* Looks drawn per bubble: a dark band, a grey shoulder, a bright spot slightly off centre. */
+static void random_look(synth_track *tr, uint64_t key)
+{
+    tr->band = rng_range(key, 20, 0.03, 0.12);
+    tr->shoulder = rng_range(key, 21, 0.28, 0.48);
+    tr->spot = rng_range(key, 22, 0.55, 0.92);
+    tr->spot_frac = rng_range(key, 23, 0.2, 0.45);
+    tr->spot_u = rng_range(key, 24, -0.18, 0.18);
+    tr->spot_v = rng_range(key, 25, -0.12, 0.25);
+}
+
+static int cmp_first(const void *a, const void *b)
+{
+    const synth_track *x = a, *y = b;
+    if (x->f_first != y->f_first)
+        return x->f_first < y->f_first ? -1 : 1;
+    if (x->x0 != y->x0)
+        return x->x0 < y->x0 ? -1 : 1;
+    return 0;
+}
+
+/* sizing: still bubbles placed by random sequential addition, largest first, with a gap so no
+ * two silhouettes (blur included) touch. */
+static int build_sizing(synth_scene *sc, uint64_t seed, sp_error *err)
+{
+    int w = sc->width, h = sc->height;
+    /* Keep the count near 160 on the default frame and scale with area on others. */
+    double scale = (double)w * h / (1280.0 * 1024.0);
+    int n = (int)lround(160.0 * scale);
+    if (n < 4)
+        n = 4;
+    if (n > 20000)
+        n = 20000;
+    double dmax = fmin(160.0, 0.5 * fmin(w, h));
+    double dmin = fmin(4.0, dmax);
+    synth_track *t = calloc((size_t)n, sizeof *t);
+    double *dv = malloc((size_t)n * sizeof *dv);
+    if (!t || !dv) {
+        free(t);
+        free(dv);
+        return sp_error_set(err, SP_ERR_INTERNAL, "synth: out of memory for %d bubbles", n);
+    }
+    /* Diameters log-uniform; sorted descending so the big ones find room first. */
+    uint64_t kd = rng_key(seed, RNG_LAYOUT, 0, 0);
+    for (int i = 0; i < n; i++)
+        dv[i] = dmin * pow(dmax / dmin, (i + 0.5) / n + (rng_unit(kd, (uint64_t)i) - 0.5) / n);
+    for (int i = 1; i < n; i++) /* insertion sort, descending */
+        for (int j = i; j > 0 && dv[j] > dv[j - 1]; j--) {
+            double tmp = dv[j];
+            dv[j] = dv[j - 1];
+            dv[j - 1] = tmp;
+        }
+    int placed = 0;
+    double *cr = malloc((size_t)n * sizeof *cr); /* clearance radius of each placed bubble */
+    if (!cr) {
+        free(t);
+        free(dv);
+        return sp_error_set(err, SP_ERR_INTERNAL, "synth: out of memory for %d bubbles", n);
+    }
+    for (int i = 0; i < n; i++) {
+        uint64_t k = rng_key(seed, RNG_BUBBLE, (uint64_t)i, 0);
+        synth_track *tr = &t[placed];
+        memset(tr, 0, sizeof *tr);
+        tr->d_vol_px = dv[i];
+        tr->aspect = rng_range(k, 1, 0.5, 1.0);
+        tr->tilt0 = 90.0 - 180.0 * rng_unit(k, 2); /* (-90, 90] */
+        /* Most in focus (|z| <= dof/2), a quarter up to 6 depths of field away. */
+        double az = rng_unit(k, 3) < 0.75 ? rng_range(k, 4, 0.0, 0.5 * sc->dof_mm)
+                                          : rng_range(k, 4, 0.55 * sc->dof_mm, 3.0 * sc->dof_mm);
+        tr->z_mm = rng_unit(k, 5) < 0.5 ? -az : az;
+        random_look(tr, k);
+        double major = dv[i] * pow(tr->aspect, -1.0 / 3.0);
+        double clear = 0.5 * major + sc->blur_px_per_mm * az + 3.0;
+        int ok = 0;
+        for (int attempt = 0; attempt < 4000 && !ok; attempt++) {
+            /* Centres may sit a little outside the picture so some bubbles are cut by the edge. */
+            double m = 0.3 * 0.5 * major;
+            double x = rng_range(k, 100 + 2 * (uint64_t)attempt, -m, w - 1 + m);
+            double y = rng_range(k, 101 + 2 * (uint64_t)attempt, -m, h - 1 + m);
+            ok = 1;
+            for (int j = 0; j < placed && ok; j++) {
+                double dx = x - t[j].x0, dy = y - t[j].y0;
+                if (dx * dx + dy * dy < (clear + cr[j]) * (clear + cr[j]))
+                    ok = 0;
+            }
+            if (ok) {
+                tr->x0 = x;
+                tr->y0 = y;
+            }
+        }
+        if (!ok)
+            continue; /* no room left for this size: the scene is simply one bubble shorter */
+        cr[placed] = clear;
+        tr->f_first = 0;
+        tr->f_last = sc->frames - 1;
+        tr->site = 0;
+        placed++;
+    }
+    free(cr);
+    free(dv);
+    /* Ids in placement order: track 1 is the largest bubble. */
+    sc->tracks = t;
+    sc->ntracks = (size_t)placed;
+    for (size_t i = 0; i < sc->ntracks; i++)
+        sc->tracks[i].id = (int)i + 1;
+    sc->max_life = sc->frames;
+    return SP_OK;
+}
+
+/* Rise speed of an air bubble in water, Mendelson (1967) wave analogy, held to the 0.2-0.3 m/s
+ * band the scenario promises (the formula leaves its range below ~1.5 mm). */
+static double rise_speed_m_s(double d_mm)
+{
+    const double sigma = 0.07274, rho = 998.21, g = 9.80665; /* water 20 C, REFERENCES.md */
+    double d = d_mm * 1e-3;
+    double u = sqrt(2.0 * sigma / (rho * d) + g * d / 2.0);
+    return fmin(0.3, fmax(0.2, u));
+}
+
+/* Aspect ratio from Wellek, Agrawal & Skelland (1966): E = 1/(1 + 0.163 Eo^0.757). */
+static double wellek_aspect(double d_mm)
+{
+    const double sigma = 0.07274, drho = 998.21 - 1.2, g = 9.80665;
+    double d = d_mm * 1e-3;
+    double eo = drho * g * d * d / sigma;
+    return 1.0 / (1.0 + 0.163 * pow(eo, 0.757));
+}
+
+/* plume: three nozzles just below the picture emit trains of bubbles that rise through it. */
+static int build_plume(synth_scene *sc, uint64_t seed, sp_error *err)
+{
+    const int nn = 3;
+    const double d_mean[3] = {1.6, 2.8, 4.2}; /* mm */
+    const double rate_hz[3] = {30.0, 20.0, 12.0};
+    const double z_noz[3] = {-0.8, 0.4, 2.6}; /* mm from the focal plane; the third is blurred */
+    double s = sc->mm_per_px, fps = sc->fps;
+    int w = sc->width, h = sc->height;
+    double t_end = (double)(sc->frames - 1) / fps;
+    /* The slowest bubble needs this long to cross the picture; start emitting that early so the
+     * plume is established at frame 0. */
+    double cross_s = (h + 6.0 / s) * s * 1e-3 / 0.2;
+    double t_start = -cross_s;
+    size_t cap = 0, n = 0;
+    synth_track *t = NULL;
+    for (int k = 0; k < nn; k++) {
+        uint64_t kn = rng_key(seed, RNG_EMIT, (uint64_t)k, 0);
+        double xn = w * (k + 1.0) / (nn + 1.0) + rng_range(kn, 0, -0.03, 0.03) * w;
+        double te = t_start + rng_unit(kn, 1) / rate_hz[k];
+        for (uint64_t e = 0; te <= t_end; e++) {
+            if (n >= MAX_TRACKS) {
+                free(t);
+                return sp_error_set(err, SP_ERR_INPUT, "synth: plume: too many bubbles for %lld frames",
+                                    (long long)sc->frames);
+            }
+            if (n == cap) {
+                size_t nc = cap ? 2 * cap : 256;
+                synth_track *nt = realloc(t, nc * sizeof *nt);
+                if (!nt) {
+                    free(t);
+                    return sp_error_set(err, SP_ERR_INTERNAL, "synth: out of memory for the plume");
+                }
+                t = nt;
+                cap = nc;
+            }
+            uint64_t kb = rng_key(seed, RNG_BUBBLE, (uint64_t)k, e);
+            synth_track *tr = &t[n];
+            memset(tr, 0, sizeof *tr);
+            double d_mm = d_mean[k] * (1.0 + 0.12 * rng_normal(kb, 0));
+            d_mm = fmin(5.0, fmax(1.0, d_mm));
+            double u = rise_speed_m_s(d_mm) * (1.0 + 0.04 * rng_normal(kb, 1)); /* m/s */
+            u = fmin(0.3, fmax(0.2, u));
+            tr->site = k + 1;
+            tr->d_vol_px = d_mm / s;
+            tr->aspect = wellek_aspect(d_mm);
+            tr->aspect_amp = 0.03 + 0.02 * rng_unit(kb, 2);
+            tr->t0 = te;
+            tr->x0 = xn + rng_normal(kb, 3) * 0.3 / s;
+            tr->y0 = h - 1.0 + 0.5 * tr->d_vol_px / tr->aspect + 4.0; /* just below the picture */
+            tr->vy = -u * 1e3 / s;                                    /* px/s, y down */
+            tr->vx = rng_normal(kb, 4) * 8.0 / s;                     /* drift, ~8 mm/s */
+            tr->wob_amp = (0.15 + 0.2 * d_mm) * rng_range(kb, 5, 0.6, 1.2) / s;
+            tr->wob_hz = rng_range(kb, 6, 6.0, 11.0);
+            tr->wob_ph = rng_range(kb, 7, 0.0, 2.0 * PI);
+            tr->tilt0 = 6.0 * rng_normal(kb, 8);
+            tr->tilt_amp = d_mm > 2.0 ? rng_range(kb, 9, 10.0, 25.0) : rng_range(kb, 9, 0.0, 8.0);
+            tr->z_mm = z_noz[k] + 0.5 * rng_normal(kb, 10);
+            random_look(tr, kb);
+            /* Frames in which it shows: from entering at the bottom to leaving at the top. */
+            int64_t f0 = (int64_t)ceil(te * fps);
+            if (f0 < 0)
+                f0 = 0;
+            tr->f_first = -1;
+            tr->f_last = -2;
+            for (int64_t f = f0; f < sc->frames; f++) {
+                synth_state st;
+                synth_track_state(tr, (double)f / fps, &st);
+                if (synth_state_visible(sc, &st)) {
+                    if (tr->f_first < 0)
+                        tr->f_first = f;
+                    tr->f_last = f;
+                } else if (tr->f_first >= 0 || st.y < 0.0) {
+                    break; /* gone out of the top */
+                }
+            }
+            if (tr->f_first >= 0)
+                n++;
+            te += (1.0 + 0.5 * (rng_unit(kb, 11) - 0.5)) / rate_hz[k];
+        }
+    }
+    qsort(t, n, sizeof *t, cmp_first);
+    sc->max_life = 1;
+    for (size_t i = 0; i < n; i++) {
+        t[i].id = (int)i + 1;
+        int64_t life = t[i].f_last - t[i].f_first + 1;
+        if (life > sc->max_life)
+            sc->max_life = life;
+    }
+    sc->tracks = t;
+    sc->ntracks = n;
+    return SP_OK;
+}
+
+int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc, sp_error *err)
+{
+    memset(sc, 0, sizeof *sc);
+    if (!name || !sp_synth_describe(name))
+        return sp_error_set(err, SP_ERR_INPUT, "synth: unknown scenario '%s' (try sizing or plume)",
+                            name ? name : "");
+    int sizing = strcmp(name, "sizing") == 0;
+    sc->name = sizing ? "sizing" : "plume";
+    sc->description = sp_synth_describe(name);
+    if (sizing) {
+        sc->width = 1280;
+        sc->height = 1024;
+        sc->frames = 20;
+        sc->fps = 60.0; /* so 100 Hz mains flicker changes from frame to frame */
+        sc->mm_per_px = 0.02;
+        sc->exposure_s = 1e-4;
+        sc->dof_mm = 1.0;
+        sc->blur_px_per_mm = 2.0; /* blur disc of 1 px at the edge of the depth of field */
+    } else {
+        sc->width = 640;
+        sc->height = 800;
+        sc->frames = 300;
+        sc->fps = 500.0;
+        sc->mm_per_px = 0.05;
+        sc->exposure_s = 1.0 / 3000.0;
+        sc->dof_mm = 3.0;
+        sc->blur_px_per_mm = 1.0 / 1.5;
+    }
+    if (o->width > 0)
+        sc->width = o->width;
+    if (o->height > 0)
+        sc->height = o->height;
+    if (o->frames > 0)
+        sc->frames = o->frames;
+    if (o->width < 0 || o->height < 0 || o->frames < 0)
+        return sp_error_set(err, SP_ERR_INPUT, "synth: negative frame size or count");
+    if (sc->width < 16 || sc->height < 16)
+        return sp_error_set(err, SP_ERR_INPUT, "synth: frame size %dx%d is too small (at least 16x16)",
+                            sc->width, sc->height);
+    int rc = sp_check_dims(sc->width, sc->height, "synth", err);
+    if (rc)
+        return rc;
+    if (sc->frames > 1000000)
+        return sp_error_set(err, SP_ERR_INPUT, "synth: %lld frames is more than the 1000000 allowed",
+                            (long long)sc->frames);
+    return sizing ? build_sizing(sc, o->seed, err) : build_plume(sc, o->seed, err);
+}
+
+void synth_scene_free(synth_scene *sc)
+{
+    if (!sc)
+        return;
+    free(sc->tracks);
+    memset(sc, 0, sizeof *sc);
+}

@@ -1,0 +1,49 @@
+/* Scenarios of the synthesiser: the bubbles' trajectories and looks, and the optics of the set-up.
+ * Internal to the synth layer. */
+#ifndef SP_SYNTH_SCENES_H
+#define SP_SYNTH_SCENES_H
+
+#include "synth/render.h"
+#include "synth/synth.h"
+
+/* One bubble over its life. Positions in pixels (y down), time in seconds:
+ *   x(t) = x0 + vx·(t − t0) + wob_amp·sin(2π·wob_hz·(t − t0) + wob_ph),  y(t) = y0 + vy·(t − t0).
+ * Its volume is constant; the aspect ratio breathes slightly with the wobble. */
+typedef struct synth_track {
+    int id;                  /* truth track id, ≥ 1, in order of first appearance */
+    int site;                /* nozzle it came from (≥ 1) or 0 */
+    int64_t f_first, f_last; /* frames in which any of it is in the picture */
+    double t0, x0, y0, vx, vy, wob_amp, wob_hz, wob_ph;
+    double d_vol_px, aspect, aspect_amp, tilt0, tilt_amp;
+    double z_mm; /* distance from the focal plane */
+    double band, shoulder, spot, spot_frac, spot_u, spot_v;
+} synth_track;
+
+/* A bubble in one frame, in pixels. */
+typedef struct synth_state {
+    double x, y, major, minor, tilt_deg, vx, vy; /* full axes; velocity px/s, y down */
+} synth_state;
+
+typedef struct synth_scene {
+    const char *name, *description;
+    int width, height;
+    int64_t frames;
+    double fps, mm_per_px;
+    double exposure_s;     /* shutter time: motion blur is velocity × exposure */
+    double dof_mm;         /* depth of field: |z| <= dof/2 is in focus */
+    double blur_px_per_mm; /* defocus disc radius per mm of |z| */
+    synth_track *tracks;   /* sorted by f_first; owned */
+    size_t ntracks;
+    int64_t max_life; /* longest f_last - f_first + 1, for finding the live tracks */
+} synth_scene;
+
+int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc, sp_error *err);
+void synth_scene_free(synth_scene *sc);
+void synth_track_state(const synth_track *tr, double t, synth_state *st);
+/* How the track looks at that state (contrast, defocus, motion smear from the scene's optics). */
+void synth_track_look(const synth_scene *sc, const synth_track *tr, const synth_state *st,
+                      sp_bubble_look *lk);
+/* Whether any of the bubble is in the picture (its box reaches past a border pixel's centre). */
+int synth_state_visible(const synth_scene *sc, const synth_state *st);
+
+#endif
