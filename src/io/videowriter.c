@@ -1,6 +1,7 @@
 /* Encoding grey frames through libavcodec/libavformat. FFV1 is lossless and keeps 16-bit samples,
  * so a synthesised or exported recording decodes to exactly the frames that were written. */
 #include "io/videowriter.h"
+#include "io/source_internal.h" /* sp_ffmpeg_quiet */
 
 #include <libavcodec/avcodec.h>
 #include <libavformat/avformat.h>
@@ -75,6 +76,7 @@ int sp_video_writer_open(sp_video_writer **out, const char *path, int w, int h, 
     rc = sp_check_dims(w, h, path, err);
     if (rc)
         return rc;
+    sp_ffmpeg_quiet(); /* the library never prints: FFmpeg's log is switched off */
     double fps = o && o->fps > 0 ? o->fps : 25.0;
     const char *codec_name = o && o->codec && o->codec[0] ? o->codec : "ffv1";
 
@@ -125,7 +127,8 @@ int sp_video_writer_open(sp_video_writer **out, const char *path, int w, int h, 
         vw->enc->slices = 4;
         /* Golomb–Rice coding: on noisy camera frames it compresses as well as the range coder
          * at about twice the speed. */
-        av_opt_set(vw->enc->priv_data, "coder", "rice", 0);
+        if (bytes == 1) /* (above 8 bits FFV1 needs the range coder) */
+            av_opt_set(vw->enc->priv_data, "coder", "rice", 0);
         /* Version 3 with slice CRCs: robust, multithreadable, standard in archives. */
         av_opt_set_int(vw->enc->priv_data, "slicecrc", 1, 0);
         vw->enc->level = 3;

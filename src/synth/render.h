@@ -31,7 +31,7 @@ typedef struct sp_patch {
 } sp_patch;
 
 /* Render the bubble for a frame of fw×fh (the patch is clipped to the frame plus the blur
- * margin). The sharp silhouette is exact: pixels the outline crosses are supersampled 8×8, so
+ * margin). The sharp silhouette is exact: pixels the outline crosses are supersampled (8×8, or 16×16 below 8 px semi-minor axis), so
  * the deficit of a flat black bubble sums to its area. Returns 0, or -1 when out of memory. */
 int sp_render_bubble(const sp_bubble_look *b, int fw, int fh, sp_patch *p);
 
