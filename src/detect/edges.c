@@ -145,7 +145,7 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
                 int dx = dir4[d][0], dy = dir4[d][1];
                 if (ext_at(e, x + dx, y + dy) != 2 || lab_at(labels, w, h, x + dx, y + dy) < 0)
                     continue;
-                for (int k = 2; k <= 8; k++) {
+                for (int k = 3; k <= 10; k++) {
                     int xx = x + k * dx, yy = y + k * dy;
                     if (lab_at(labels, w, h, xx, yy) != 0)
                         break; /* left the frame or met another bubble */

@@ -10,11 +10,11 @@
  * interpolated image, so it needs no normal estimate; on an anti-aliased step the phase error of
  * linear interpolation averages out around a closed outline.
  *
- * Levels: n_light is the median transmission of background pixels (label 0) 2..8 px outside the
- * component along the same pair directions: far enough to step over a defocus ramp of ~3 px, near
- * enough to follow residual light gradients, and blind to other bubbles. n_dark is the 20th
- * percentile of the component's own pixels: the dark band, unaffected by a bright spot that covers
- * less than ~80 % of the area. */
+ * Levels: n_light is the median transmission of background pixels (label 0) 3..10 px outside the
+ * component along the same pair directions: far enough to step over a defocus ramp of up to ~3.5 px at any
+ * edge direction, near enough to follow residual light gradients, and blind to other bubbles. n_dark is the
+ * 20th percentile of the component's own pixels: the dark band, unaffected by a bright spot that covers less
+ * than ~80 % of the area. */
 #ifndef SP_DETECT_EDGES_H
 #define SP_DETECT_EDGES_H
 
