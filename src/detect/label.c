@@ -249,7 +249,7 @@ int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, 
     }
 
     /* First scan, strips in parallel. */
-#pragma omp parallel for num_threads(nt) schedule(static, 1)
+#pragma omp parallel for num_threads(ns) schedule(static, 1)
     for (int i = 0; i < ns; i++)
         lb->strips[i].failed = scan_strip(&lb->strips[i], mask, mstride, w) != 0;
     size_t total = 0;
@@ -305,7 +305,7 @@ int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, 
     }
 
     /* Second scan: labels image in parallel; statistics per run (closed forms over a run). */
-#pragma omp parallel for num_threads(nt) schedule(static, 1)
+#pragma omp parallel for num_threads(ns) schedule(static, 1)
     for (int i = 0; i < ns; i++)
         write_strip(&lb->strips[i], lb->final, lb->offset[i], w, labels);
     for (int i = 0; i < ns; i++) {
