@@ -225,7 +225,7 @@ static int build_plume(synth_scene *sc, uint64_t seed, sp_error *err)
 {
     const int nn = 3;
     const double d_mean[3] = {1.6, 2.8, 4.2}; /* mm */
-    const double rate_hz[3] = {30.0, 20.0, 12.0};
+    const double rate_hz[3] = {36.0, 24.0, 14.0};
     const double z_noz[3] = {-0.8, 0.4, 2.6}; /* mm from the focal plane; the third is blurred */
     double s = sc->mm_per_px, fps = sc->fps;
     int w = sc->width, h = sc->height;
@@ -238,7 +238,7 @@ static int build_plume(synth_scene *sc, uint64_t seed, sp_error *err)
     synth_track *t = NULL;
     for (int k = 0; k < nn; k++) {
         uint64_t kn = rng_key(seed, RNG_EMIT, (uint64_t)k, 0);
-        double xn = w * (k + 1.0) / (nn + 1.0) + rng_range(kn, 0, -0.03, 0.03) * w;
+        double xn = w * (0.3 + 0.21 * k) + rng_range(kn, 0, -0.02, 0.02) * w;
         double te = t_start + rng_unit(kn, 1) / rate_hz[k];
         for (uint64_t e = 0; te <= t_end; e++) {
             if (n >= MAX_TRACKS) {
@@ -271,7 +271,7 @@ static int build_plume(synth_scene *sc, uint64_t seed, sp_error *err)
             tr->x0 = xn + rng_normal(kb, 3) * 0.3 / s;
             tr->y0 = h - 1.0 + 0.5 * tr->d_vol_px / tr->aspect + 4.0; /* just below the picture */
             tr->vy = -u * 1e3 / s;                                    /* px/s, y down */
-            tr->vx = rng_normal(kb, 4) * 8.0 / s;                     /* drift, ~8 mm/s */
+            tr->vx = rng_normal(kb, 4) * 12.0 / s;                    /* the plume spreads: drift ~12 mm/s */
             tr->wob_amp = (0.15 + 0.2 * d_mm) * rng_range(kb, 5, 0.6, 1.2) / s;
             tr->wob_hz = rng_range(kb, 6, 6.0, 11.0);
             tr->wob_ph = rng_range(kb, 7, 0.0, 2.0 * PI);
