@@ -455,6 +455,62 @@ static void write_scene_json(FILE *f, const synth_scene *sc, const sp_synth_opts
 
 /* ---------------------------------------------------------------- run */
 
+/* The empty field: the same light, window dust and camera with no bubble in view, averaged over
+ * 16 exposures taken just before the run, as a lab records before releasing bubbles. Measuring
+ * still bubbles needs it: a background estimated from the frames would absorb them. */
+#define EMPTY_FIELD_EXPOSURES 16
+static int write_empty_field(const synth_scene *sc, const camera *cam, const sp_synth_opts *o,
+                             const char *dir, sp_error *err)
+{
+    int rc = SP_OK;
+    size_t npx = (size_t)sc->width * (size_t)sc->height;
+    float *ones = malloc(npx * sizeof *ones);
+    double *sum = calloc(npx, sizeof *sum);
+    sp_image img = {0}, avg = {0};
+    char fin[PATHMAX], tmp[PATHMAX];
+    if (!ones || !sum) {
+        rc = sp_error_set(err, SP_ERR_INTERNAL, "synth: out of memory for the empty field");
+        goto done;
+    }
+    if ((rc = join(fin, dir, "empty_field.png", err)) || (rc = join(tmp, dir, "empty_field.png.part", err)))
+        goto done;
+    if ((rc = sp_image_alloc(&img, sc->width, sc->height, o->bytes, err)) ||
+        (rc = sp_image_alloc(&avg, sc->width, sc->height, o->bytes, err)))
+        goto done;
+    avg.bits = img.bits = o->bits;
+    for (size_t i = 0; i < npx; i++)
+        ones[i] = 1.f;
+    for (int k = 1; k <= EMPTY_FIELD_EXPOSURES; k++) {
+        expose(cam, ones, -k, sc->fps, &img);
+        for (int y = 0; y < sc->height; y++)
+            for (int x = 0; x < sc->width; x++)
+                sum[(size_t)y * sc->width + x] += img.bytes == 1 ? sp_row8(&img, y)[x] : sp_row16(&img, y)[x];
+    }
+    for (int y = 0; y < sc->height; y++)
+        for (int x = 0; x < sc->width; x++) {
+            unsigned q = (unsigned)(sum[(size_t)y * sc->width + x] / EMPTY_FIELD_EXPOSURES + 0.5);
+            uint8_t *row = (uint8_t *)avg.data + (ptrdiff_t)y * avg.stride;
+            if (avg.bytes == 1)
+                row[x] = (uint8_t)q;
+            else
+                ((uint16_t *)row)[x] = (uint16_t)q;
+        }
+    if ((rc = sp_png_write(tmp, &avg, err))) {
+        unlink(tmp);
+        goto done;
+    }
+    if (rename(tmp, fin) != 0) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot rename into place: %s", fin, strerror(errno));
+        unlink(tmp);
+    }
+done:
+    free(ones);
+    free(sum);
+    sp_image_free(&img);
+    sp_image_free(&avg);
+    return rc;
+}
+
 int sp_synth_run(const char *scenario, const char *outdir, const sp_synth_opts *opts, sp_error *err)
 {
     int rc = SP_OK;
@@ -503,6 +559,8 @@ int sp_synth_run(const char *scenario, const char *outdir, const sp_synth_opts *
     if (o.png && (rc = make_dirs(p_frames, err)))
         goto fail;
     if ((rc = camera_init(&cam, &sc, &o, err)))
+        goto fail;
+    if ((rc = write_empty_field(&sc, &cam, &o, outdir, err)))
         goto fail;
 
     fb = fopen(p_bub_t, "w");
