@@ -5,7 +5,7 @@ set -euo pipefail
 here=$(cd "$(dirname "$0")/.." && pwd)
 pkgs=(build-essential cmake pkg-config
       libavformat-dev libavcodec-dev libavutil-dev libswscale-dev
-      libpng-dev libjpeg62-turbo-dev
+      libpng-dev libjpeg62-turbo-dev libjansson-dev libswresample-dev
       ffmpeg python3 python3-numpy python3-scipy python3-skimage python3-pil python3-opencv)
 missing=()
 for p in "${pkgs[@]}"; do
