@@ -303,9 +303,9 @@ int sp_audio_read(sp_audio *a, float *buf, int max, int *got, sp_error *err)
             buf[n + i] = v;
         }
         a->pos += take;
+        a->delivered += take; /* counted here: the end-of-stream checks in decode_next read it */
         n += take;
     }
-    a->delivered += n;
     *got = n;
     return SP_OK;
 }
