@@ -188,7 +188,7 @@ static double field_run(int nb, int frames, int64_t *fingerprint, int *maxactive
             break;
         }
         for (int j = 0; j < n; j++) {
-            fp = fp * 1000003 + ids[j];
+            fp = (int64_t)((uint64_t)fp * 1000003u + (uint64_t)ids[j]);
             if (ids[j] < 1000000) {
                 if (truth_of_id[ids[j]]) {
                     links++;
