@@ -64,7 +64,9 @@ void sp_linker_free(sp_linker *lk);
 /* Link the n detections of frame `frame` (time t_s). Frames must come in increasing order.
  * Each detection gets a track id (>= 1) in ids[i]; new ids are given in order of birth, and within
  * a frame in detection order, so the result depends only on the input. Tracks that miss more than
- * max_gap frames are ended and wait in a queue for sp_linker_pop_ended. */
+ * max_gap frames are ended and wait in a queue for sp_linker_pop_ended. Bad input (SP_ERR_INPUT:
+ * frames out of order, time not advancing, non-finite values) is rejected before any state
+ * changes, so the linker stays usable; after SP_ERR_INTERNAL (out of memory) it may only be freed. */
 int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *d, int n, int64_t *ids,
                    sp_error *err);
 
@@ -72,7 +74,8 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
  * when none is waiting. The caller frees *out with sp_track_free. */
 int sp_linker_pop_ended(sp_linker *lk, sp_track **out);
 
-/* End every active track (they join the queue for sp_linker_pop_ended, by id). Returns 0. */
+/* End every active track (they join the queue for sp_linker_pop_ended, by id). Returns 0, or
+ * SP_ERR_INTERNAL when out of memory (tracks that could not be queued stay active). */
 int sp_linker_finish(sp_linker *lk);
 
 /* Tracks currently held (active, not yet ended). */
