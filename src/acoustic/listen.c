@@ -36,6 +36,12 @@ static int on_ping(void *ud, const sp_ping *p, sp_error *err)
 {
     (void)err;
     job *j = ud;
+    sp_ping q = *p;
+    double kappa = 0, r = q.f_hz > 0 ? sp_minnaert_radius(&j->s->medium, q.f_hz, &kappa) : 0;
+    /* The band is wider than the radii asked (filter skirts); accept only radii in the range. */
+    if (q.status == SP_PING_OK && (r * 1e3 < j->s->r_min_mm || r * 1e3 > j->s->r_max_mm))
+        q.status = SP_PING_BAND;
+    p = &q;
     j->rep->candidates++;
     if (p->status != SP_PING_OK)
         j->rep->rejected[p->status]++;
@@ -43,7 +49,6 @@ static int on_ping(void *ud, const sp_ping *p, sp_error *err)
         j->rep->pings++;
     if (p->status != SP_PING_OK && !j->s->write_rejected)
         return SP_OK;
-    double kappa = 0, r = p->f_hz > 0 ? sp_minnaert_radius(&j->s->medium, p->f_hz, &kappa) : 0;
     fprintf(j->csv, "%.6f,%.3f,%.6g,%.2f,%.5f,%.6g,%.2f,%.4f,%.4f,%.4g", p->t_s, p->f_hz,
             p->beta_s > 0 ? 1.0 / p->beta_s : 0.0, p->snr_db, r * 1e3, p->amp, isfinite(p->q) ? p->q : 0.0,
             p->r2, kappa, isfinite(p->f_crb_hz) ? p->f_crb_hz : 0.0);

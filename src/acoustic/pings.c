@@ -71,7 +71,7 @@ void sp_ping_opts_default(sp_ping_opts *o)
     o->end_db = 3;
     o->rise_db = 6;
     o->max_s = 0.1;
-    o->q_min = 2;
+    o->q_min = 5;
     o->r2_min = 0.5;
     o->warmup_s = 0.02;
 }

@@ -20,7 +20,10 @@ typedef struct sp_ping_opts {
     double rise_db;          /* in a decay, a rise this far above the lowest hop since the peak is a
                                 second onset: both pings are rejected as overlapping (default 6 dB) */
     double max_s;            /* longest segment analysed per ping (default 0.1 s) */
-    double q_min;            /* fewest ringing: quality factor pi f / beta at least this (default 2) */
+    double q_min;            /* ringing: quality factor pi f / beta at least this (default 5; the total
+                                damping of air bubbles in water, delta = 1/Q, stays below 0.1 from
+                                0.1 mm up, so real pings have Q > 10 while clicks ring for a sample
+                                or two at the band edge) */
     double r2_min;           /* the damped sinusoid must explain this fraction of the energy (0.5) */
     double warmup_s;         /* no onsets before the floor has this much history (default 0.02 s) */
 } sp_ping_opts;
