@@ -10,12 +10,19 @@
 #define PI 3.14159265358979323846
 #define MAX_TRACKS 2000000
 
-static const char *const scenario_names[] = {"sizing", "plume", NULL};
+static const char *const scenario_names[] = {"sizing", "plume", "column", "nucleation", NULL};
 
 static const char desc_sizing[] = "isolated still bubbles, diameters log-uniform 4-160 px, some out of focus "
                                   "or cut by the frame edge, for checking sizing";
 static const char desc_plume[] = "rising plume of 1-5 mm bubbles from three nozzles below the frame, "
                                  "0.2-0.3 m/s with lateral wobble, for checking tracking";
+
+static const char desc_column[] = "dense bubble column of 1-6 mm bubbles from a sparger of ten needles below "
+                                  "the frame, zigzag paths and overlaps in projection, for tracking tests";
+static const char desc_nucleation[] =
+    "glass wall seen through a carbonated liquid: six nucleation sites emitting "
+    "trains at 3-25 Hz of 0.045-0.2 mm bubbles that grow and speed up as "
+    "they rise, for site and growth tests";
 
 const char *const *sp_synth_scenarios(void)
 {
@@ -30,7 +37,56 @@ const char *sp_synth_describe(const char *scenario)
         return desc_sizing;
     if (strcmp(scenario, "plume") == 0)
         return desc_plume;
+    if (strcmp(scenario, "column") == 0)
+        return desc_column;
+    if (strcmp(scenario, "nucleation") == 0)
+        return desc_nucleation;
     return NULL;
+}
+
+double synth_rise_small_mm_s(double d_mm)
+{
+    const double rho = 998.21, mu = 1.0016e-3, g = 9.80665, drho = 998.21 - 1.2; /* REFERENCES.md */
+    double d = d_mm * 1e-3;
+    if (!(d > 0))
+        return 0.0;
+    double us = drho * g * d * d / (18.0 * mu); /* Stokes */
+    /* U·(1 + 0.15·(ρUd/μ)^0.687) = U_Stokes: increasing and convex in U, so Newton from U_Stokes
+     * descends monotonically onto the root. */
+    double a = 0.15 * pow(rho * d / mu, 0.687), u = us;
+    for (int i = 0; i < 30; i++) {
+        double f = u + a * pow(u, 1.687) - us, df = 1.0 + 1.687 * a * pow(u, 0.687);
+        double nu = u - f / df;
+        if (!(nu > 0))
+            nu = 0.5 * u;
+        if (fabs(nu - u) <= 1e-14 * us) {
+            u = nu;
+            break;
+        }
+        u = nu;
+    }
+    return u * 1e3;
+}
+
+/* Rise speed in px/s of a track's bubble of diameter d_px under its rise law. */
+static double rise_px_s(const synth_track *tr, double d_px)
+{
+    return synth_rise_small_mm_s(d_px * tr->mm_per_px) / tr->mm_per_px;
+}
+
+/* Height risen (px) between t0 and t0 + dt by a growing bubble: Simpson's rule over 64 panels of
+ * the speed of the linearly growing diameter (smooth, so far below a pixel's error). */
+static double risen_px(const synth_track *tr, double dt)
+{
+    enum { NP = 64 };
+    if (!(dt > 0))
+        return 0.0;
+    double h = dt / NP, sum = 0;
+    for (int i = 0; i <= NP; i++) {
+        double w = (i == 0 || i == NP) ? 1.0 : (i % 2 ? 4.0 : 2.0);
+        sum += w * rise_px_s(tr, tr->d_vol_px + tr->growth_px_s * h * i);
+    }
+    return sum * h / 3.0;
 }
 
 void synth_track_state(const synth_track *tr, double t, synth_state *st)
@@ -38,15 +94,23 @@ void synth_track_state(const synth_track *tr, double t, synth_state *st)
     double dt = t - tr->t0;
     double ph = 2.0 * PI * tr->wob_hz * dt + tr->wob_ph;
     st->x = tr->x0 + tr->vx * dt + tr->wob_amp * sin(ph);
-    st->y = tr->y0 + tr->vy * dt;
     st->vx = tr->vx + tr->wob_amp * 2.0 * PI * tr->wob_hz * cos(ph);
-    st->vy = tr->vy;
+    double d = tr->d_vol_px + tr->growth_px_s * dt;
+    if (d < 0.05 * tr->d_vol_px)
+        d = 0.05 * tr->d_vol_px; /* before its birth a growing bubble is never drawn; keep d > 0 */
+    if (tr->rise_law == 1) {
+        st->y = tr->y0 - risen_px(tr, dt);
+        st->vy = dt > 0 ? -rise_px_s(tr, d) : -rise_px_s(tr, tr->d_vol_px);
+    } else {
+        st->y = tr->y0 + tr->vy * dt;
+        st->vy = tr->vy;
+    }
     /* Zigzagging bubbles turn their broad face to the motion: the major axis leans against the
      * lateral velocity, and the shape flattens twice per cycle. */
     double e = tr->aspect + tr->aspect_amp * sin(2.0 * ph);
     if (e > 1.0)
         e = 1.0;
-    st->major = tr->d_vol_px * pow(e, -1.0 / 3.0); /* keeps major²·minor = d_vol³ */
+    st->major = d * pow(e, -1.0 / 3.0); /* keeps major²·minor = d_vol³ */
     st->minor = st->major * e;
     double tilt = tr->tilt0 - tr->tilt_amp * cos(ph);
     while (tilt > 90.0)
@@ -314,16 +378,221 @@ static int build_plume(synth_scene *sc, uint64_t seed, sp_error *err)
     return SP_OK;
 }
 
+/* Room for one more track in a growing array. */
+static synth_track *push_track(synth_track **t, size_t *n, size_t *cap, const char *scene, int64_t frames,
+                               sp_error *err)
+{
+    if (*n >= MAX_TRACKS) {
+        sp_error_set(err, SP_ERR_INPUT, "synth: %s: too many bubbles for %lld frames", scene,
+                     (long long)frames);
+        return NULL;
+    }
+    if (*n == *cap) {
+        size_t nc = *cap ? 2 * *cap : 256;
+        synth_track *nt = realloc(*t, nc * sizeof *nt);
+        if (!nt) {
+            sp_error_set(err, SP_ERR_INTERNAL, "synth: %s: out of memory for %zu bubbles", scene, nc);
+            return NULL;
+        }
+        *t = nt;
+        *cap = nc;
+    }
+    synth_track *tr = &(*t)[(*n)++];
+    memset(tr, 0, sizeof *tr);
+    return tr;
+}
+
+/* Frames in which the track shows, from frame f0 on, until it leaves through the top. Returns 0
+ * when it never shows. */
+static int track_extent(const synth_scene *sc, synth_track *tr, int64_t f0)
+{
+    if (f0 < 0)
+        f0 = 0;
+    tr->f_first = -1;
+    tr->f_last = -2;
+    for (int64_t f = f0; f < sc->frames; f++) {
+        synth_state st;
+        synth_track_state(tr, (double)f / sc->fps, &st);
+        if (synth_state_visible(sc, &st)) {
+            if (tr->f_first < 0)
+                tr->f_first = f;
+            tr->f_last = f;
+        } else if (tr->f_first >= 0 || st.y < 0.0) {
+            break;
+        }
+    }
+    return tr->f_first >= 0;
+}
+
+/* Sort by first frame, number the tracks and hand them to the scene. */
+static void finish_tracks(synth_scene *sc, synth_track *t, size_t n)
+{
+    qsort(t, n, sizeof *t, cmp_first);
+    sc->max_life = 1;
+    for (size_t i = 0; i < n; i++) {
+        t[i].id = (int)i + 1;
+        int64_t life = t[i].f_last - t[i].f_first + 1;
+        if (life > sc->max_life)
+            sc->max_life = life;
+    }
+    sc->tracks = t;
+    sc->ntracks = n;
+}
+
+/* column: a sparger of ten needles below the picture feeds a dense column of 1-6 mm bubbles that
+ * zigzag (planar lateral oscillation, amplitude and frequency drawn per bubble) at depths spread
+ * over ±6 mm, so many overlap in projection and some are out of focus. */
+static int build_column(synth_scene *sc, uint64_t seed, sp_error *err)
+{
+    enum { NN = 10 };
+    double s = sc->mm_per_px, fps = sc->fps;
+    int w = sc->width, h = sc->height;
+    double t_end = (double)(sc->frames - 1) / fps;
+    double t_start = -(h * s + 8.0) * 1e-3 / 0.2; /* the slowest bubble crosses the picture by frame 0 */
+    size_t cap = 0, n = 0;
+    synth_track *t = NULL;
+    for (int k = 0; k < NN; k++) {
+        uint64_t kn = rng_key(seed, RNG_EMIT, 100 + (uint64_t)k, 0);
+        double xn = w * (k + 0.5) / NN + rng_range(kn, 0, -0.03, 0.03) * w;
+        double rate = rng_range(kn, 1, 12.0, 24.0);
+        double dm = rng_range(kn, 2, 1.5, 5.0); /* needle's mean bubble diameter, mm */
+        double zn = rng_range(kn, 3, -6.0, 6.0);
+        double te = t_start + rng_unit(kn, 4) / rate;
+        for (uint64_t e = 0; te <= t_end; e++) {
+            uint64_t kb = rng_key(seed, RNG_BUBBLE, 100 + (uint64_t)k, e);
+            synth_track *tr = push_track(&t, &n, &cap, "column", sc->frames, err);
+            if (!tr) {
+                free(t);
+                return err ? err->code : SP_ERR_INTERNAL;
+            }
+            double d_mm = fmin(6.0, fmax(1.0, dm * (1.0 + 0.15 * rng_normal(kb, 0))));
+            double u = fmin(0.3, fmax(0.2, rise_speed_m_s(d_mm) * (1.0 + 0.05 * rng_normal(kb, 1))));
+            tr->source = k + 1;
+            tr->d_vol_px = d_mm / s;
+            tr->aspect = wellek_aspect(d_mm);
+            tr->aspect_amp = 0.02 + 0.03 * rng_unit(kb, 2);
+            tr->t0 = te;
+            tr->x0 = xn + rng_normal(kb, 3) * 1.0 / s;
+            tr->y0 = h - 1.0 + 0.5 * tr->d_vol_px / tr->aspect + 4.0;
+            tr->vy = -u * 1e3 / s;
+            tr->vx = rng_normal(kb, 4) * 15.0 / s; /* the column spreads and recirculates */
+            /* Path instability: bubbles above ~1.5 mm zigzag, with amplitudes of a fraction of to
+             * about one diameter at 5-10 Hz; smaller ones rise almost straight. Model values. */
+            double amp_d = d_mm > 1.5 ? rng_range(kb, 5, 0.4, 1.0) : rng_range(kb, 5, 0.0, 0.1);
+            tr->wob_amp = amp_d * d_mm / s;
+            tr->wob_hz = rng_range(kb, 6, 5.0, 10.0);
+            tr->wob_ph = rng_range(kb, 7, 0.0, 2.0 * PI);
+            tr->tilt0 = 5.0 * rng_normal(kb, 8);
+            tr->tilt_amp = d_mm > 2.0 ? rng_range(kb, 9, 10.0, 30.0) : rng_range(kb, 9, 0.0, 8.0);
+            tr->z_mm = zn + 1.5 * rng_normal(kb, 10);
+            random_look(tr, kb);
+            if (!track_extent(sc, tr, (int64_t)ceil(te * fps)))
+                n--;
+            te += (1.0 + 0.6 * (rng_unit(kb, 11) - 0.5)) / rate;
+        }
+    }
+    finish_tracks(sc, t, n);
+    return SP_OK;
+}
+
+/* nucleation: bubbles nucleate on a glass wall in the focal plane (on fibres or scratches of the
+ * wall, in a carbonated liquid), detach at a site-specific size, then grow linearly in radius as
+ * gas diffuses in (dR/dt 0.1-0.3 mm/s; REFERENCES.md "Growth in supersaturated liquids") and
+ * rise ever faster (synth_rise_small_mm_s). A bubble is drawn from its detachment on: the growth
+ * before detachment happens inside the site's cavity, out of sight. */
+static int build_nucleation(synth_scene *sc, uint64_t seed, sp_error *err)
+{
+    enum { NS = 6 };
+    const double rates[NS] = {3.0, 5.0, 8.0, 12.0, 18.0, 25.0};
+    double s = sc->mm_per_px, fps = sc->fps;
+    int w = sc->width, h = sc->height;
+    double t_end = (double)(sc->frames - 1) / fps;
+    size_t cap = 0, n = 0;
+    synth_track *t = NULL;
+    synth_site *site = calloc(NS, sizeof *site);
+    if (!site)
+        return sp_error_set(err, SP_ERR_INTERNAL, "synth: nucleation: out of memory");
+    /* Sites in the lower 45 % of the picture, spread across it, at least ~0.8 mm apart. */
+    uint64_t kl = rng_key(seed, RNG_LAYOUT, 7, 0);
+    double gap = fmin(0.8 / s, 0.12 * w);
+    for (int k = 0; k < NS; k++) {
+        synth_site *p = &site[k];
+        for (int attempt = 0; attempt < 200; attempt++) {
+            p->x_px = rng_range(kl, 2 * (uint64_t)(k * 200 + attempt), 0.08 * w, 0.92 * w);
+            p->y_px = rng_range(kl, 2 * (uint64_t)(k * 200 + attempt) + 1, 0.55 * h, 0.92 * h);
+            int ok = 1;
+            for (int j = 0; j < k; j++)
+                ok &= hypot(p->x_px - site[j].x_px, p->y_px - site[j].y_px) >= gap;
+            if (ok)
+                break;
+        }
+        uint64_t kn = rng_key(seed, RNG_EMIT, 200 + (uint64_t)k, 0);
+        p->rate_hz = rates[k];
+        p->interval_cv = rng_range(kn, 0, 0.03, 0.10);
+        p->d_detach_mm = 0.045 * pow(0.2 / 0.045, rng_unit(kn, 1)); /* log-uniform 0.045-0.2 mm */
+        p->growth_mm_s = 2.0 * rng_range(kn, 2, 0.1, 0.3);          /* diameter: 2·dR/dt */
+        double drift = rng_normal(kn, 3) * 0.3;                     /* slow convection, mm/s */
+        double z = rng_range(kn, 4, -0.1, 0.1);
+        /* Emission began long before the run so the trains fill the picture at frame 0. */
+        double te = -2.0 + rng_unit(kn, 5) / p->rate_hz;
+        for (uint64_t e = 0; te <= t_end; e++) {
+            uint64_t kb = rng_key(seed, RNG_BUBBLE, 200 + (uint64_t)k, e);
+            synth_track *tr = push_track(&t, &n, &cap, "nucleation", sc->frames, err);
+            if (!tr) {
+                free(t);
+                free(site);
+                return err ? err->code : SP_ERR_INTERNAL;
+            }
+            double d0 = p->d_detach_mm * (1.0 + 0.04 * rng_normal(kb, 0));
+            tr->source = k + 1;
+            tr->d_vol_px = d0 / s;
+            tr->growth_px_s = p->growth_mm_s * (1.0 + 0.05 * rng_normal(kb, 1)) / s;
+            tr->rise_law = 1;
+            tr->mm_per_px = s;
+            tr->aspect = 1.0; /* Eo < 0.01: spherical */
+            tr->t0 = te;
+            tr->x0 = p->x_px + 0.02 * tr->d_vol_px * rng_normal(kb, 2);
+            tr->y0 = p->y_px;
+            tr->vx = (drift + 0.1 * rng_normal(kb, 3)) / s;
+            tr->z_mm = z;
+            random_look(tr, kb);
+            int64_t fb = (int64_t)ceil(te * fps);
+            if (track_extent(sc, tr, fb)) {
+                tr->born = tr->f_first == fb;
+                tr->site = tr->born ? k + 1 : 0;
+            } else {
+                n--;
+            }
+            double step = 1.0 + p->interval_cv * rng_normal(kb, 4);
+            te += fmax(0.3, step) / p->rate_hz;
+        }
+    }
+    finish_tracks(sc, t, n);
+    sc->sites = site;
+    sc->nsites = NS;
+    return SP_OK;
+}
+
 int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc, sp_error *err)
 {
     memset(sc, 0, sizeof *sc);
     if (!name || !sp_synth_describe(name))
-        return sp_error_set(err, SP_ERR_INPUT, "synth: unknown scenario '%s' (try sizing or plume)",
+        return sp_error_set(err, SP_ERR_INPUT,
+                            "synth: unknown scenario '%s' (try sizing, plume, column or nucleation)",
                             name ? name : "");
-    int sizing = strcmp(name, "sizing") == 0;
-    sc->name = sizing ? "sizing" : "plume";
+    enum {
+        SIZING,
+        PLUME,
+        COLUMN,
+        NUCLEATION
+    } kind = strcmp(name, "sizing") == 0   ? SIZING
+             : strcmp(name, "plume") == 0  ? PLUME
+             : strcmp(name, "column") == 0 ? COLUMN
+                                           : NUCLEATION;
+    const char *const *names = sp_synth_scenarios();
+    sc->name = names[kind];
     sc->description = sp_synth_describe(name);
-    if (sizing) {
+    if (kind == SIZING) {
         sc->width = 1280;
         sc->height = 1024;
         sc->frames = 20;
@@ -332,7 +601,7 @@ int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc,
         sc->exposure_s = 1e-4;
         sc->dof_mm = 1.0;
         sc->blur_px_per_mm = 2.0; /* blur disc of 1 px at the edge of the depth of field */
-    } else {
+    } else if (kind == PLUME) {
         sc->width = 640;
         sc->height = 800;
         sc->frames = 300;
@@ -341,6 +610,24 @@ int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc,
         sc->exposure_s = 1.0 / 3000.0;
         sc->dof_mm = 3.0;
         sc->blur_px_per_mm = 1.0 / 1.5;
+    } else if (kind == COLUMN) {
+        sc->width = 640;
+        sc->height = 800; /* 32 × 40 mm */
+        sc->frames = 200;
+        sc->fps = 500.0; /* 0.2-0.3 m/s: 8-12 px per frame, well under a bubble's size */
+        sc->mm_per_px = 0.05;
+        sc->exposure_s = 1.0 / 5000.0;
+        sc->dof_mm = 3.0;
+        sc->blur_px_per_mm = 1.0 / 1.5;
+    } else {
+        sc->width = 512;
+        sc->height = 640; /* 5.12 × 6.4 mm: a macro view of the wall */
+        sc->frames = 300;
+        sc->fps = 150.0; /* 2 s: the 3 Hz site emits 6 bubbles; the fastest move ~15 px per frame */
+        sc->mm_per_px = 0.01;
+        sc->exposure_s = 1.0 / 5000.0;
+        sc->dof_mm = 0.3; /* macro optics: shallow; the sites lie on the wall, in focus */
+        sc->blur_px_per_mm = 10.0;
     }
     if (o->width > 0)
         sc->width = o->width;
@@ -359,7 +646,16 @@ int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc,
     if (sc->frames > 1000000)
         return sp_error_set(err, SP_ERR_INPUT, "synth: %lld frames is more than the 1000000 allowed",
                             (long long)sc->frames);
-    return sizing ? build_sizing(sc, o->seed, err) : build_plume(sc, o->seed, err);
+    switch (kind) {
+    case SIZING:
+        return build_sizing(sc, o->seed, err);
+    case PLUME:
+        return build_plume(sc, o->seed, err);
+    case COLUMN:
+        return build_column(sc, o->seed, err);
+    default:
+        return build_nucleation(sc, o->seed, err);
+    }
 }
 
 void synth_scene_free(synth_scene *sc)
@@ -367,5 +663,6 @@ void synth_scene_free(synth_scene *sc)
     if (!sc)
         return;
     free(sc->tracks);
+    free(sc->sites);
     memset(sc, 0, sizeof *sc);
 }

@@ -8,10 +8,17 @@
 
 /* One bubble over its life. Positions in pixels (y down), time in seconds:
  *   x(t) = x0 + vx·(t − t0) + wob_amp·sin(2π·wob_hz·(t − t0) + wob_ph),  y(t) = y0 + vy·(t − t0).
- * Its volume is constant; the aspect ratio breathes slightly with the wobble. */
+ * Its volume-equivalent diameter is d_vol_px + growth_px_s·(t − t0) (constant when growth is 0);
+ * with rise_law 1 the rise speed follows that diameter (synth_rise_small_mm_s) and y is its
+ * integral. The aspect ratio breathes slightly with the wobble. */
 typedef struct synth_track {
     int id;                  /* truth track id, ≥ 1, in order of first appearance */
-    int site;                /* nozzle it came from (≥ 1) or 0 */
+    int site;                /* site it was born at in view (≥ 1), the plume's nozzle, or 0 */
+    int source;              /* site or nozzle it came from, even when born before the run, or 0 */
+    int born;                /* 1: seen from its birth (detachment) inside the picture */
+    double growth_px_s;      /* rate of change of the volume-equivalent diameter (0 = constant) */
+    int rise_law;            /* 0: vy constant; 1: vy = −(small-bubble rise speed of the diameter) */
+    double mm_per_px;        /* scale, for rise_law 1 */
     int64_t f_first, f_last; /* frames in which any of it is in the picture */
     double t0, x0, y0, vx, vy, wob_amp, wob_hz, wob_ph;
     double d_vol_px, aspect, aspect_amp, tilt0, tilt_amp;
@@ -24,6 +31,15 @@ typedef struct synth_state {
     double x, y, major, minor, tilt_deg, vx, vy; /* full axes; velocity px/s, y down */
 } synth_state;
 
+/* A nucleation site: a fixed point that emits a train of bubbles (generating parameters). */
+typedef struct synth_site {
+    double x_px, y_px;  /* bubble centre at detachment */
+    double rate_hz;     /* nominal emission rate */
+    double interval_cv; /* jitter of the intervals (std / mean) */
+    double d_detach_mm; /* mean diameter at detachment */
+    double growth_mm_s; /* mean growth rate of the diameter after detachment (2·dR/dt) */
+} synth_site;
+
 typedef struct synth_scene {
     const char *name, *description;
     int width, height;
@@ -34,8 +50,15 @@ typedef struct synth_scene {
     double blur_px_per_mm; /* defocus disc radius per mm of |z| */
     synth_track *tracks;   /* sorted by f_first; owned */
     size_t ntracks;
-    int64_t max_life; /* longest f_last - f_first + 1, for finding the live tracks */
+    int64_t max_life;  /* longest f_last - f_first + 1, for finding the live tracks */
+    synth_site *sites; /* nucleation sites in view (truth_sites.csv), owned; NULL if none */
+    size_t nsites;
 } synth_scene;
+
+/* Terminal rise speed (mm/s) of a small bubble of diameter d_mm in water at 20 °C that behaves as
+ * a rigid sphere (surfactant-laden surface): Stokes drag with the Schiller & Naumann (1933)
+ * correction C_D = 24/Re·(1 + 0.15 Re^0.687), solved by Newton's method. */
+double synth_rise_small_mm_s(double d_mm);
 
 int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc, sp_error *err);
 void synth_scene_free(synth_scene *sc);

@@ -262,6 +262,8 @@ static int silhouettes_touch(const synth_state *a, const synth_state *b)
     return outline_hits(a, b, grow) || outline_hits(b, a, grow);
 }
 
+static int state_on_edge(const synth_scene *sc, const synth_state *st);
+
 static int gather_frame(const synth_scene *sc, int64_t f, slot *s, sp_error *err)
 {
     s->frame = f;
@@ -296,11 +298,7 @@ static int gather_frame(const synth_scene *sc, int64_t f, slot *s, sp_error *err
         b->track = i;
         b->st = st;
         synth_track_look(sc, tr, &st, &b->lk);
-        double hx, hy;
-        sp_ellipse_extent(0.5 * st.major, 0.5 * st.minor, st.tilt_deg, &hx, &hy);
-        /* edge: the outline reaches the centre line of a border pixel row or column */
-        b->edge = st.x - hx <= 0.0 || st.x + hx >= sc->width - 1.0 || st.y - hy <= 0.0 ||
-                  st.y + hy >= sc->height - 1.0;
+        b->edge = state_on_edge(sc, &st);
         b->overlap = 0;
     }
     for (size_t i = 0; i < s->n; i++)
@@ -412,9 +410,66 @@ static double ls_slope(int64_t n, double st, double stt, double sv, double svt)
     return (n * svt - st * sv) / den;
 }
 
-static void write_tracks(FILE *f, const synth_scene *sc, const track_acc *acc)
+static int cmp_dbl(const void *a, const void *b)
 {
-    fprintf(f, "track,frame_first,frame_last,n,d_vol_mm,growth_mm_s,vx_mm_s,vy_mm_s,speed_mm_s,site,z_mm\n");
+    double x = *(const double *)a, y = *(const double *)b;
+    return x < y ? -1 : x > y;
+}
+
+/* The edge rule of the truth rows: the outline reaches the centre line of a border pixel row or
+ * column. */
+static int state_on_edge(const synth_scene *sc, const synth_state *st)
+{
+    double hx, hy;
+    sp_ellipse_extent(0.5 * st->major, 0.5 * st->minor, st->tilt_deg, &hx, &hy);
+    return st->x - hx <= 0.0 || st->x + hx >= sc->width - 1.0 || st->y - hy <= 0.0 ||
+           st->y + hy >= sc->height - 1.0;
+}
+
+/* Median volume-equivalent diameter (px) and least-squares growth rate (px/s) over the track's
+ * non-edge rows, as tracks.csv defines them, by replaying the track's frames. `buf` holds the
+ * track's life in doubles. Falls back to all rows when every row touches the edge. */
+static void track_size(const synth_scene *sc, const synth_track *tr, const track_acc *a, double *buf,
+                       double *d_med, double *growth)
+{
+    for (int pass = 0; pass < 2; pass++) {
+        size_t k = 0;
+        double st_ = 0, stt = 0, sd = 0, sdt = 0;
+        for (int64_t f = a->first; f <= a->last; f++) {
+            synth_state st;
+            double t = f / sc->fps;
+            synth_track_state(tr, t, &st);
+            if (!synth_state_visible(sc, &st) || (pass == 0 && state_on_edge(sc, &st)))
+                continue;
+            double d = cbrt(st.major * st.major * st.minor);
+            buf[k++] = d;
+            st_ += t;
+            stt += t * t;
+            sd += d;
+            sdt += d * t;
+        }
+        if (k < 2 && pass == 0)
+            continue; /* one non-edge row gives no slope: use all rows */
+        if (k == 0)
+            continue;
+        *growth = ls_slope((int64_t)k, st_, stt, sd, sdt);
+        qsort(buf, k, sizeof *buf, cmp_dbl);
+        *d_med = k % 2 ? buf[k / 2] : 0.5 * (buf[k / 2 - 1] + buf[k / 2]);
+        return;
+    }
+    *d_med = tr->d_vol_px;
+    *growth = 0.0;
+}
+
+static int write_tracks(FILE *f, const synth_scene *sc, const track_acc *acc, sp_error *err)
+{
+    int64_t life = sc->max_life > 0 ? sc->max_life : 1;
+    double *buf = malloc((size_t)life * sizeof *buf);
+    if (!buf)
+        return sp_error_set(err, SP_ERR_INTERNAL, "synth: out of memory for a track of %lld frames",
+                            (long long)life);
+    fprintf(f, "track,frame_first,frame_last,n,d_vol_mm,growth_mm_s,vx_mm_s,vy_mm_s,speed_mm_s,site,z_mm,"
+               "source,born,x_first_mm,y_first_mm,d_first_mm,osc_amp_mm,osc_hz\n");
     for (size_t i = 0; i < sc->ntracks; i++) {
         const track_acc *a = &acc[i];
         const synth_track *tr = &sc->tracks[i];
@@ -422,11 +477,73 @@ static void write_tracks(FILE *f, const synth_scene *sc, const track_acc *acc)
             continue;
         double vx = ls_slope(a->n, a->st, a->stt, a->sx, a->sxt);
         double vy = ls_slope(a->n, a->st, a->stt, a->sy, a->syt);
-        /* Volume is constant along each track, so the median d_vol is the track's and growth 0. */
-        fprintf(f, "%d,%lld,%lld,%lld,%.5f,%.5f,%.4f,%.4f,%.4f,%d,%.4f\n", tr->id, (long long)a->first,
-                (long long)a->last, (long long)a->n, tr->d_vol_px * sc->mm_per_px, 0.0, vx, vy, hypot(vx, vy),
-                tr->site, tr->z_mm);
+        double s = sc->mm_per_px, d_med = tr->d_vol_px, growth = 0.0;
+        /* A constant volume needs no replay: the median is the volume's diameter, growth 0. */
+        if (tr->growth_px_s != 0.0)
+            track_size(sc, tr, a, buf, &d_med, &growth);
+        synth_state s0;
+        synth_track_state(tr, a->first / sc->fps, &s0);
+        fprintf(f, "%d,%lld,%lld,%lld,%.5f,%.5f,%.4f,%.4f,%.4f,%d,%.4f,%d,%d,%.5f,%.5f,%.5f,%.4f,%.4f\n",
+                tr->id, (long long)a->first, (long long)a->last, (long long)a->n, d_med * s, growth * s, vx,
+                vy, hypot(vx, vy), tr->site, tr->z_mm, tr->source, tr->born, s0.x * s,
+                (sc->height - 1 - s0.y) * s, cbrt(s0.major * s0.major * s0.minor) * s, tr->wob_amp * s,
+                tr->wob_hz);
     }
+    free(buf);
+    return SP_OK;
+}
+
+static int cmp_time(const void *a, const void *b)
+{
+    return cmp_dbl(a, b);
+}
+
+/* truth_sites.csv: per site the births seen in the run (tracks with that site): their number, the
+ * emission rate (n - 1)/(t_last - t_first) over the detachment times, the median detachment
+ * diameter and growth rate, beside the generating parameters. */
+static int write_sites(FILE *f, const synth_scene *sc, sp_error *err)
+{
+    double *tb = malloc((sc->ntracks ? sc->ntracks : 1) * 3 * sizeof *tb);
+    if (!tb)
+        return sp_error_set(err, SP_ERR_INTERNAL, "synth: out of memory for %zu tracks", sc->ntracks);
+    double *db = tb + (sc->ntracks ? sc->ntracks : 1), *gb = db + (sc->ntracks ? sc->ntracks : 1);
+    double s = sc->mm_per_px;
+    fprintf(f, "site,x_mm,y_mm,n,rate_hz,d_detach_mm,growth_mm_s,interval_cv,rate_nominal_hz,"
+               "d_detach_nominal_mm,growth_nominal_mm_s\n");
+    for (size_t k = 0; k < sc->nsites; k++) {
+        const synth_site *p = &sc->sites[k];
+        size_t n = 0;
+        for (size_t i = 0; i < sc->ntracks; i++) {
+            const synth_track *tr = &sc->tracks[i];
+            if (tr->site != (int)k + 1)
+                continue;
+            tb[n] = tr->t0;
+            db[n] = tr->d_vol_px * s;
+            gb[n++] = tr->growth_px_s * s;
+        }
+        double rate = 0, cv = NAN, dd = NAN, gg = NAN;
+        if (n > 0) {
+            qsort(tb, n, sizeof *tb, cmp_time);
+            qsort(db, n, sizeof *db, cmp_dbl);
+            qsort(gb, n, sizeof *gb, cmp_dbl);
+            dd = n % 2 ? db[n / 2] : 0.5 * (db[n / 2 - 1] + db[n / 2]);
+            gg = n % 2 ? gb[n / 2] : 0.5 * (gb[n / 2 - 1] + gb[n / 2]);
+            double span = tb[n - 1] - tb[0];
+            if (n >= 2 && span > 0)
+                rate = (n - 1) / span;
+            if (n >= 3 && span > 0) {
+                double mean = span / (n - 1), ss = 0;
+                for (size_t j = 1; j < n; j++)
+                    ss += (tb[j] - tb[j - 1] - mean) * (tb[j] - tb[j - 1] - mean);
+                cv = sqrt(ss / (n - 2)) / mean;
+            }
+        }
+        fprintf(f, "%zu,%.5f,%.5f,%zu,%.5f,%.5f,%.5f,%.5f,%.5f,%.5f,%.5f\n", k + 1, p->x_px * s,
+                (sc->height - 1 - p->y_px) * s, n, rate, dd, gg, cv, p->rate_hz, p->d_detach_mm,
+                p->growth_mm_s);
+    }
+    free(tb);
+    return SP_OK;
 }
 
 static void write_scene_json(FILE *f, const synth_scene *sc, const sp_synth_opts *o, int bits, size_t ntracks,
@@ -520,11 +637,11 @@ int sp_synth_run(const char *scenario, const char *outdir, const sp_synth_opts *
     slot *slots = NULL;
     int nslots = 0;
     track_acc *acc = NULL;
-    FILE *fb = NULL, *ft = NULL, *fj = NULL;
+    FILE *fb = NULL, *ft = NULL, *fj = NULL, *fs = NULL;
     sp_video_writer *vw = NULL;
     char p_bub[PATHMAX] = "", p_bub_t[PATHMAX] = "", p_trk[PATHMAX] = "", p_trk_t[PATHMAX] = "";
     char p_js[PATHMAX] = "", p_js_t[PATHMAX] = "", p_vid[PATHMAX] = "", p_vid_t[PATHMAX] = "";
-    char p_frames[PATHMAX] = "";
+    char p_frames[PATHMAX] = "", p_sit[PATHMAX] = "", p_sit_t[PATHMAX] = "";
     int64_t rows = 0;
 
     memset(&sc, 0, sizeof sc);
@@ -552,6 +669,8 @@ int sp_synth_run(const char *scenario, const char *outdir, const sp_synth_opts *
         (rc = join(p_trk_t, outdir, "truth_tracks.csv.part", err)) ||
         (rc = join(p_js, outdir, "scene.json", err)) || (rc = join(p_js_t, outdir, "scene.json.part", err)) ||
         (rc = join(p_vid, outdir, "video.mkv", err)) || (rc = join(p_vid_t, outdir, "video.part.mkv", err)) ||
+        (rc = join(p_sit, outdir, "truth_sites.csv", err)) ||
+        (rc = join(p_sit_t, outdir, "truth_sites.csv.part", err)) ||
         (rc = join(p_frames, outdir, "frames", err)))
         goto fail;
     if ((rc = make_dirs(outdir, err)))
@@ -664,11 +783,27 @@ int sp_synth_run(const char *scenario, const char *outdir, const sp_synth_opts *
         rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot create: %s", p_trk_t, strerror(errno));
         goto fail;
     }
-    write_tracks(ft, &sc, acc);
+    if ((rc = write_tracks(ft, &sc, acc, err)))
+        goto fail;
     rc = finish_file(ft, p_trk_t, p_trk, err);
     ft = NULL;
     if (rc)
         goto fail;
+    if (sc.nsites > 0) {
+        fs = fopen(p_sit_t, "w");
+        if (!fs) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot create: %s", p_sit_t, strerror(errno));
+            goto fail;
+        }
+        if ((rc = write_sites(fs, &sc, err)))
+            goto fail;
+        rc = finish_file(fs, p_sit_t, p_sit, err);
+        fs = NULL;
+        if (rc)
+            goto fail;
+    } else {
+        unlink(p_sit); /* no sites: a table left by an earlier run would mislead */
+    }
     size_t ntr = 0;
     for (size_t i = 0; i < sc.ntracks; i++)
         ntr += acc[i].n > 0;
@@ -700,11 +835,16 @@ fail:
         fclose(fj);
         unlink(p_js_t);
     }
+    if (fs) {
+        fclose(fs);
+        unlink(p_sit_t);
+    }
     if (rc && p_js_t[0]) { /* partial temporaries never stay behind */
         unlink(p_vid_t);
         unlink(p_bub_t);
         unlink(p_trk_t);
         unlink(p_js_t);
+        unlink(p_sit_t);
     }
     for (int i = 0; i < nslots; i++) {
         free(slots[i].b);
