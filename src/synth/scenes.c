@@ -378,20 +378,20 @@ static int build_plume(synth_scene *sc, uint64_t seed, sp_error *err)
     return SP_OK;
 }
 
-/* Room for one more track in a growing array. */
+/* Room for one more track in a growing array; NULL with *rc set on failure. */
 static synth_track *push_track(synth_track **t, size_t *n, size_t *cap, const char *scene, int64_t frames,
-                               sp_error *err)
+                               int *rc, sp_error *err)
 {
     if (*n >= MAX_TRACKS) {
-        sp_error_set(err, SP_ERR_INPUT, "synth: %s: too many bubbles for %lld frames", scene,
-                     (long long)frames);
+        *rc = sp_error_set(err, SP_ERR_INPUT, "synth: %s: too many bubbles for %lld frames", scene,
+                           (long long)frames);
         return NULL;
     }
     if (*n == *cap) {
         size_t nc = *cap ? 2 * *cap : 256;
         synth_track *nt = realloc(*t, nc * sizeof *nt);
         if (!nt) {
-            sp_error_set(err, SP_ERR_INTERNAL, "synth: %s: out of memory for %zu bubbles", scene, nc);
+            *rc = sp_error_set(err, SP_ERR_INTERNAL, "synth: %s: out of memory for %zu bubbles", scene, nc);
             return NULL;
         }
         *t = nt;
@@ -460,10 +460,11 @@ static int build_column(synth_scene *sc, uint64_t seed, sp_error *err)
         double te = t_start + rng_unit(kn, 4) / rate;
         for (uint64_t e = 0; te <= t_end; e++) {
             uint64_t kb = rng_key(seed, RNG_BUBBLE, 100 + (uint64_t)k, e);
-            synth_track *tr = push_track(&t, &n, &cap, "column", sc->frames, err);
+            int rc = SP_OK;
+            synth_track *tr = push_track(&t, &n, &cap, "column", sc->frames, &rc, err);
             if (!tr) {
                 free(t);
-                return err ? err->code : SP_ERR_INTERNAL;
+                return rc;
             }
             double d_mm = fmin(6.0, fmax(1.0, dm * (1.0 + 0.15 * rng_normal(kb, 0))));
             double u = fmin(0.3, fmax(0.2, rise_speed_m_s(d_mm) * (1.0 + 0.05 * rng_normal(kb, 1))));
@@ -537,11 +538,12 @@ static int build_nucleation(synth_scene *sc, uint64_t seed, sp_error *err)
         double te = -2.0 + rng_unit(kn, 5) / p->rate_hz;
         for (uint64_t e = 0; te <= t_end; e++) {
             uint64_t kb = rng_key(seed, RNG_BUBBLE, 200 + (uint64_t)k, e);
-            synth_track *tr = push_track(&t, &n, &cap, "nucleation", sc->frames, err);
+            int rc = SP_OK;
+            synth_track *tr = push_track(&t, &n, &cap, "nucleation", sc->frames, &rc, err);
             if (!tr) {
                 free(t);
                 free(site);
-                return err ? err->code : SP_ERR_INTERNAL;
+                return rc;
             }
             double d0 = p->d_detach_mm * (1.0 + 0.04 * rng_normal(kb, 0));
             tr->source = k + 1;

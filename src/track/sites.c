@@ -118,7 +118,7 @@ static int64_t cell_of(double v, double cell)
 
 static int neighbours(const cand *a, const cand *b)
 {
-    double dx = a->x - b->x, dy = a->yw - b->yw, e = fmax(a->eps, b->eps);
+    double dx = a->x - b->x, dy = a->yw - b->yw, e = fmin(a->eps, b->eps);
     return dx * dx + dy * dy <= e * e;
 }
 
@@ -308,7 +308,8 @@ int sp_sites_find(const sp_birth *births, size_t n, const sp_sites_opts *opts, s
     qsort(grid, m, sizeof *grid, cmp_cell);
 
     /* Core points: at least min_births births (itself included) within the radius. The radius of
-     * a pair is the larger of the two, so every neighbour lies in the 3×3 block of cells. */
+     * a pair is the smaller of the two (at most the cell), so every neighbour lies in the 3×3
+     * block of cells. */
     for (size_t i = 0; i < m; i++) {
         int64_t cnt = 0;
         for (int64_t dx = -1; dx <= 1; dx++)

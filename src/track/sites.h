@@ -17,7 +17,8 @@ typedef struct sp_birth {
     double t0_s;         /* time of the first detection */
     double d0_mm;        /* first diameter (d_vol); <= 0 or non-finite: unknown */
     double growth_mm_s;  /* the track's growth rate of d_vol (non-finite: unknown) */
-    int born_inside;     /* 1: first seen away from the frame border (a birth); 0: entered from outside */
+    int born_inside;     /* 1: first seen away from the frame border (a birth); 0: entered from outside,
+                            or already in view in the first analysed frame (not seen being born) */
 } sp_birth;
 
 typedef struct sp_site {
@@ -33,7 +34,8 @@ typedef struct sp_site {
 } sp_site;
 
 typedef struct sp_sites_opts {
-    double eps_diam;   /* neighbourhood radius in first diameters of the larger of two births (2.0) */
+    double eps_diam;   /* neighbourhood radius in first diameters; a pair uses the smaller of the two
+                          radii, so a large late-found bubble cannot reach far (2.0) */
     double eps_min_mm; /* floor on the radius, e.g. the localisation error of a small bubble (0) */
     double eps_mm;     /* > 0: a fixed radius instead of the size-scaled one (0) */
     double y_weight;   /* vertical distances count this much: births of one site string out
