@@ -585,7 +585,7 @@ int sp_grid_fit_run(const sp_dot *dots, int n, double pitch_mm, int w, int h, in
                     const char *what, sp_error *err)
 {
     int rc = SP_OK, N = 0;
-    double *g = NULL, *o = NULL, *jac = NULL;
+    double *g = NULL, *o = NULL, *jac = NULL, *rdiam = NULL;
     memset(out, 0, sizeof *out);
     if (!(pitch_mm > 0) || !isfinite(pitch_mm))
         return sp_error_set(err, SP_ERR_INPUT, "%s: bad pitch %g mm", what, pitch_mm);
@@ -596,7 +596,8 @@ int sp_grid_fit_run(const sp_dot *dots, int n, double pitch_mm, int w, int h, in
     g = malloc(sizeof *g * 2 * (size_t)N);
     o = malloc(sizeof *o * 2 * (size_t)N);
     jac = malloc(sizeof *jac * 2 * (size_t)N * 10);
-    if (!g || !o || !jac) {
+    rdiam = malloc(sizeof *rdiam * (size_t)N);
+    if (!g || !o || !jac || !rdiam) {
         rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", what);
         goto fail;
     }
@@ -608,6 +609,7 @@ int sp_grid_fit_run(const sp_dot *dots, int n, double pitch_mm, int w, int h, in
             g[2 * q + 1] = dots[k].j * pitch_mm;
             o[2 * q] = dots[k].x;
             o[2 * q + 1] = dots[k].y;
+            rdiam[q] = dots[k].diam_px;
             cgx += g[2 * q], cgy += g[2 * q + 1], cix += o[2 * q], ciy += o[2 * q + 1];
             q++;
         }
@@ -639,50 +641,97 @@ int sp_grid_fit_run(const sp_dot *dots, int n, double pitch_mm, int w, int h, in
         rc = sp_error_set(err, SP_ERR_INPUT, "%s: the dot positions do not determine a homography", what);
         goto fail;
     }
-    double p[10] = {0}, best[10], cov[100], bestcov[100];
+    double p0[10] = {0}, p[10], best[10], cov[100], bestcov[100], bestrss = 0;
     for (int k = 0; k < 8; k++)
-        p[k] = hv[k] / hv[8];
+        p0[k] = hv[k] / hv[8];
 
     int lim = max_terms < 0 ? 2 : max_terms > 2 ? 2 : max_terms;
-    int nu = 2 * N - 8;
-    m.np = 8;
-    double rss = model_fit(&m, p, g, o, N, cov, jac);
-    if (rss < 0) {
-        rc = sp_error_set(err, SP_ERR_INPUT, "%s: the homography fit is singular", what);
-        goto fail;
-    }
-    int bestnp = 8;
-    memcpy(best, p, sizeof p);
-    memcpy(bestcov, cov, sizeof cov);
-    double bestrss = rss;
-    for (int t = 1; t <= lim; t++) {
-        if (2 * N - 8 - t < 2)
-            break;
-        m.np = 8 + t;
-        p[7 + t] = 0;
-        double r2 = model_fit(&m, p, g, o, N, cov, jac);
-        if (r2 < 0)
-            break;
-        double F = r2 > 0 ? (bestrss - r2) / (r2 / (2 * N - 8 - t)) : INFINITY;
-        out->f_stat[t - 1] = F;
-        int accept;
-        if (max_terms >= 0) {
-            accept = 1; /* the caller asked for this many terms */
-        } else {
-            /* Keep a term only if it is significant (F-test, 0.1%) and moves the image corner by
-             * at least 0.05 px: below that it changes no measurement. */
-            accept = F > f_crit_001(2 * N - 8 - t) && fabs(p[7 + t]) * m.rad.norm_px >= 0.05;
+    int nu = 2 * N - 8, bestnp = 8;
+    /* Two passes: the second refits after removing each dot's perspective bias (below). */
+    for (int pass = 0; pass < 2; pass++) {
+        memcpy(p, p0, sizeof p);
+        m.np = 8;
+        double rss = model_fit(&m, p, g, o, N, cov, jac);
+        if (rss < 0) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: the homography fit is singular", what);
+            goto fail;
         }
-        if (!accept)
-            break;
-        bestnp = m.np;
+        bestnp = 8;
+        nu = 2 * N - 8;
         memcpy(best, p, sizeof p);
         memcpy(bestcov, cov, sizeof cov);
-        bestrss = r2;
-        nu = 2 * N - bestnp;
+        bestrss = rss;
+        for (int t = 1; t <= lim; t++) {
+            if (2 * N - 8 - t < 2)
+                break;
+            m.np = 8 + t;
+            p[7 + t] = 0;
+            double r2 = model_fit(&m, p, g, o, N, cov, jac);
+            if (r2 < 0)
+                break;
+            double F = r2 > 0 ? (bestrss - r2) / (r2 / (2 * N - 8 - t)) : INFINITY;
+            out->f_stat[t - 1] = F;
+            int accept;
+            if (max_terms >= 0) {
+                accept = 1; /* the caller asked for this many terms */
+            } else {
+                /* Keep a term only if it is significant (F-test, 0.1%) and moves the image corner
+                 * by at least 0.05 px: below that it changes no measurement. */
+                accept = F > f_crit_001(2 * N - 8 - t) && fabs(p[7 + t]) * m.rad.norm_px >= 0.05;
+            }
+            if (!accept)
+                break;
+            bestnp = m.np;
+            memcpy(best, p, sizeof p);
+            memcpy(bestcov, cov, sizeof cov);
+            bestrss = r2;
+            nu = 2 * N - bestnp;
+        }
+        m.np = bestnp;
+        memcpy(p, best, sizeof p);
+        if (pass == 1)
+            break;
+        /* The centroid of a projected disc is not the projection of its centre (Heikkilä 2000,
+         * IEEE TPAMI 22:1066): perspective and distortion pull it towards the side seen larger,
+         * by about r²·(gradient of the scale). Predict each dot's shift from the first fit (the
+         * area centroid of its mapped outline, 64 vertices, radius from its blob size) and take
+         * it off the observations. */
+        double Hs[9];
+        model_H(&m, p, Hs);
+        sp_grid_fit tmpf;
+        memset(&tmpf, 0, sizeof tmpf);
+        memcpy(tmpf.H, Hs, sizeof Hs);
+        tmpf.radial = m.rad;
+        tmpf.radial.terms = bestnp - 8;
+        tmpf.radial.k1 = bestnp > 8 ? p[8] : 0;
+        tmpf.radial.k2 = bestnp > 9 ? p[9] : 0;
+        double s0;
+        if (local_scale(Hs, m.rad.cx, m.rad.cy, &s0, NULL, NULL, NULL))
+            break;
+        /* All dots share one physical size: the median blob diameter at the centre's scale. */
+        qsort(rdiam, (size_t)N, sizeof *rdiam, cmp_double);
+        double rmm = 0.5 * rdiam[N / 2] * s0;
+        for (int k = 0; k < N; k++) {
+            double r = rmm, ax = 0, ay = 0, aa = 0, px0, py0, cx0, cy0;
+            sp_grid_fit_project(&tmpf, g[2 * k], g[2 * k + 1], &cx0, &cy0);
+            sp_grid_fit_project(&tmpf, g[2 * k] + r, g[2 * k + 1], &px0, &py0);
+            double qx = px0, qy = py0;
+            for (int v = 1; v <= 64; v++) {
+                double a = 2 * M_PI * v / 64, x1, y1;
+                sp_grid_fit_project(&tmpf, g[2 * k] + r * cos(a), g[2 * k + 1] + r * sin(a), &x1, &y1);
+                /* Shoelace centroid, relative to the projected centre for precision. */
+                double xa = qx - cx0, ya = qy - cy0, xb = x1 - cx0, yb = y1 - cy0, cr = xa * yb - xb * ya;
+                aa += cr;
+                ax += (xa + xb) * cr;
+                ay += (ya + yb) * cr;
+                qx = x1, qy = y1;
+            }
+            if (fabs(aa) > 0) {
+                o[2 * k] -= ax / (3 * aa);
+                o[2 * k + 1] -= ay / (3 * aa);
+            }
+        }
     }
-    m.np = bestnp;
-    memcpy(p, best, sizeof p);
 
     model_H(&m, p, out->H);
     out->radial = m.rad;
@@ -735,11 +784,21 @@ int sp_grid_fit_run(const sp_dot *dots, int n, double pitch_mm, int w, int h, in
             vs += gs[a] * bestcov[a * bestnp + c] * gs[c];
             vr += gr[a] * bestcov[a * bestnp + c] * gr[c];
         }
-    out->mm_per_px_u = sqrt(fmax(0, s2 * vs));
-    out->rotation_u_deg = sqrt(fmax(0, s2 * vr));
+    /* The covariance treats the dots' errors as independent, so it shrinks as 1/sqrt(N); centre
+     * errors that are correlated over the target (threshold and blur effects that vary with the
+     * light, residual perspective bias) do not. Add in quadrature the scale and rotation error
+     * that a pattern of the full residual RMS, correlated over the grid, would cause: rms/R with
+     * R the RMS distance of the dots from their centroid (px). */
+    double R2 = 0;
+    for (int k = 0; k < N; k++)
+        R2 += (o[2 * k] - cix) * (o[2 * k] - cix) + (o[2 * k + 1] - ciy) * (o[2 * k + 1] - ciy);
+    double corr = R2 > 0 ? out->rms_px / sqrt(R2 / N) : 0;
+    out->mm_per_px_u = sqrt(fmax(0, s2 * vs) + pow(corr * out->mm_per_px, 2));
+    out->rotation_u_deg = sqrt(fmax(0, s2 * vr) + pow(corr * 180 / M_PI, 2));
 fail:
     free(g);
     free(o);
     free(jac);
+    free(rdiam);
     return rc;
 }
