@@ -161,45 +161,93 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     return SP_OK;
 }
 
-int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
-                    const sp_component *c, double level, sp_error *err)
+/* Profile s[k + 3] = n(p + k·d), k = −3..4. Position of the upward crossing of `level` nearest to
+ * the p–q step (segments 0, −1, 1, −2, 2, −3, 3), linear between samples; NaN if none. */
+static double crossing(const double s[8], double level)
+{
+    static const int order[7] = {0, -1, 1, -2, 2, -3, 3};
+    for (int o = 0; o < 7; o++) {
+        int k = order[o];
+        double s0 = s[k + 3], s1 = s[k + 4];
+        if (s0 < level && s1 >= level) /* also rejects NaN */
+            return k + (level - s0) / (s1 - s0);
+    }
+    return NAN;
+}
+
+/* The profile at position t (in samples, k = −3..4), linearly interpolated; NaN outside. */
+static double profile_at(const double s[8], double t)
+{
+    if (!(t >= -3.0 && t <= 4.0))
+        return NAN;
+    int k = (int)floor(t);
+    if (k >= 4)
+        return s[7];
+    double f = t - k;
+    return s[k + 3] + f * (s[k + 4] - s[k + 3]);
+}
+
+/* Profile s[k + 3] = n(p + k·d), k = −3..4, across the outline at component pixel (x, y) towards its
+ * exterior neighbour (x + dx, y + dy); NaN marks samples off the frame. */
+static void profile(const sp_frame_view *v, int x, int y, int dx, int dy, double s[8])
 {
     int w = v->frame->width, h = v->frame->height;
-    e->n = 0;
-    for (int y = c->y0; y <= c->y1; y++)
-        for (int x = c->x0; x <= c->x1; x++) {
-            if (labels[(size_t)y * w + x] != label)
-                continue;
-            for (int d = 0; d < 4; d++) {
-                int dx = dir4[d][0], dy = dir4[d][1];
-                if (ext_at(e, x + dx, y + dy) != 2 || lab_at(labels, w, h, x + dx, y + dy) < 0)
-                    continue;
-                /* Profile s[k + 3] = n(p + k·d), k = −3..4; NaN marks samples off the frame. */
-                double s[8];
-                for (int k = -3; k <= 4; k++) {
-                    int xx = x + k * dx, yy = y + k * dy;
-                    s[k + 3] =
-                        (xx < 0 || yy < 0 || xx >= w || yy >= h) ? NAN : (double)sp_view_norm(v, xx, yy);
-                }
-                /* Nearest upward crossing to the p–q step: segments 0, −1, 1, −2, 2, −3, 3. */
-                static const int order[7] = {0, -1, 1, -2, 2, -3, 3};
-                for (int o = 0; o < 7; o++) {
-                    int k = order[o];
-                    double s0 = s[k + 3], s1 = s[k + 4];
-                    if (!(s0 < level && s1 >= level))
-                        continue; /* also rejects NaN */
-                    double t = k + (level - s0) / (s1 - s0);
-                    size_t need = 2 * ((size_t)e->n + 1);
-                    int rc = reserve((void **)&e->xy, &e->xy_cap, need, sizeof(double), err);
-                    if (rc)
-                        return rc;
-                    e->xy[2 * e->n] = x + t * dx;
-                    e->xy[2 * e->n + 1] = y + t * dy;
-                    e->n++;
-                    break;
-                }
-            }
+    for (int k = -3; k <= 4; k++) {
+        int xx = x + k * dx, yy = y + k * dy;
+        s[k + 3] = (xx < 0 || yy < 0 || xx >= w || yy >= h) ? NAN : (double)sp_view_norm(v, xx, yy);
+    }
+}
+
+/* Calls fn(ctx, x, y, dx, dy) for every outline pair: (x, y) in the component, its 4-neighbour in
+ * the exterior and inside the frame. */
+#define FOR_OUTLINE_PAIRS(e, labels, w, h, label, c, BODY)                                                   \
+    for (int y = (c)->y0; y <= (c)->y1; y++)                                                                 \
+        for (int x = (c)->x0; x <= (c)->x1; x++) {                                                           \
+            if ((labels)[(size_t)y * (w) + x] != (label))                                                    \
+                continue;                                                                                    \
+            for (int d = 0; d < 4; d++) {                                                                    \
+                int dx = dir4[d][0], dy = dir4[d][1];                                                        \
+                if (ext_at((e), x + dx, y + dy) != 2 || lab_at((labels), (w), (h), x + dx, y + dy) < 0)      \
+                    continue;                                                                                \
+                BODY                                                                                         \
+            }                                                                                                \
         }
+
+int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
+                    const sp_component *c, double frac, sp_error *err)
+{
+    int w = v->frame->width, h = v->frame->height;
+    const double light = e->n_light, step = light - e->n_dark;
+    const double glevel = e->n_dark + frac * step;
+    int rc;
+    e->n = 0;
+
+    /* The crossing of edge_level of the local step, from the transmission SP_EDGE_INSET_PX inside
+     * the crossing of the component-wide level to the light. */
+    size_t nin_n = 0;
+    FOR_OUTLINE_PAIRS(e, labels, w, h, label, c, {
+        double s[8];
+        profile(v, x, y, dx, dy, s);
+        double t = crossing(s, glevel);
+        if (isnan(t))
+            continue;
+        double nin = profile_at(s, t - SP_EDGE_INSET_PX);
+        if (isfinite(nin) && nin < light) {
+            double t2 = crossing(s, nin + frac * (light - nin));
+            if (!isnan(t2))
+                t = t2;
+            if ((rc = reserve((void **)&e->vals, &e->vals_cap, nin_n + 1, sizeof(float), err)))
+                return rc;
+            e->vals[nin_n++] = (float)nin;
+        }
+        if ((rc = reserve((void **)&e->xy, &e->xy_cap, 2 * ((size_t)e->n + 1), sizeof(double), err)))
+            return rc;
+        e->xy[2 * e->n] = x + t * dx;
+        e->xy[2 * e->n + 1] = y + t * dy;
+        e->n++;
+    })
+    /* Median inner level of the local steps, for the partial-coverage area. */
+    e->n_step_in = nin_n ? quantile(e->vals, nin_n, 0.5) : e->n_dark;
     return SP_OK;
 }
 
@@ -207,7 +255,7 @@ double sp_edges_area(const sp_edges *e, const sp_frame_view *v, const int32_t *l
                      const sp_component *c)
 {
     int w = v->frame->width, h = v->frame->height;
-    double step = (double)e->n_light - (double)e->n_dark;
+    double step = (double)e->n_light - (double)e->n_step_in;
     if (!(step > 1e-3))
         return (double)c->area;
     double area = 0;

@@ -4,11 +4,13 @@
  * in the component and q in the component's exterior, where the exterior is the background reached
  * from outside the bounding box through 4-connected non-component pixels (so an unfilled bright
  * refraction spot or any enclosed pixel never contributes). Along the line through p and q, the
- * transmission profile n(p + k·d), k = −3..4, is searched for the upward crossing of the level
- * L = n_dark + edge_level·(n_light − n_dark) nearest to the p–q step, and the crossing is
- * interpolated linearly between the two samples. The point lies on the level set of the bilinearly
- * interpolated image, so it needs no normal estimate; on an anti-aliased step the phase error of
- * linear interpolation averages out around a closed outline.
+ * transmission profile n(p + k·d), k = −3..4, is searched for the upward crossing nearest to the
+ * p–q step, interpolated linearly between the two samples: first of the component-wide level
+ * n_dark + edge_level·(n_light − n_dark), then of the local step. The local step runs from the
+ * transmission SP_EDGE_INSET_PX inside that first crossing (on the profile, interpolated) to the light:
+ * a backlit bubble's outline is often a thin grey shoulder (light totally reflected at grazing
+ * incidence) lighter than the dark band further in, and the edge sits at edge_level of the step the
+ * outline itself makes, not of the step to the band. On a plain step both levels coincide.
  *
  * Levels: n_light is the median transmission of background pixels (label 0) 3..10 px outside the
  * component along the same pair directions: far enough to step over a defocus ramp of up to ~3.5 px at any
@@ -21,6 +23,10 @@
 #include "spume.h"
 #include "detect/frameview.h"
 #include "detect/label.h"
+
+/* How far inside the provisional edge the local step's inner level is read, px: one pixel, past the
+ * edge pixel's own partial coverage and still on a grey shoulder of a pixel or more. */
+#define SP_EDGE_INSET_PX 1.2
 
 typedef struct sp_edges {
     /* Padded bounding-box window: component bbox grown by 1 px on every side. */
@@ -35,6 +41,7 @@ typedef struct sp_edges {
     size_t xy_cap;
     int n;
     float n_dark, n_light, n_min; /* levels found by sp_edges_levels */
+    float n_step_in;              /* median inner level of the local steps (sp_edges_points) */
 } sp_edges;
 
 void sp_edges_release(sp_edges *e);
@@ -54,7 +61,8 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
 /* Area of the outline at the edge level from partial coverage: pixels of the component count 1,
  * except the band along the outline (component pixels 8-adjacent to the exterior, and exterior
  * background pixels 8-adjacent to the component), which count their coverage
- * (n_light − n)/(n_light − n_dark). Unbiased on an anti-aliased step; a blur wider than ~1 px
+ * (n_light − n)/(n_light − n_in), with n_in the inner level of the local steps (n_step_in after
+ * sp_edges_points, else n_dark). Unbiased on an anti-aliased step; a blur wider than ~1 px
  * spreads darkness outside the band and the estimate then falls short. */
 double sp_edges_area(const sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                      const sp_component *c);

@@ -126,13 +126,16 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
     sp_ellipse el = mo;
     int fitted = 0;
     double area;
-    if (d_pix >= o->fit_min_px && e->n_light - e->n_dark > 1e-3) {
-        double level = e->n_dark + o->edge_level * (e->n_light - e->n_dark);
-        rc = sp_edges_points(e, v, labels, label, c, level, err);
+    e->n_step_in = e->n_dark;
+    if (e->n_light - e->n_dark > 1e-3) {
+        /* Outline points for every bubble: the small ones need the local step's inner level for
+         * their partial-coverage area. */
+        rc = sp_edges_points(e, v, labels, label, c, o->edge_level, err);
         if (rc)
             return rc;
         sp_ellipse f;
-        if (e->n >= 6 && sp_ellipse_fit(e->xy, e->n, &f) == 0 && fit_plausible(&f, &mo)) {
+        if (d_pix >= o->fit_min_px && e->n >= 6 && sp_ellipse_fit(e->xy, e->n, &f) == 0 &&
+            fit_plausible(&f, &mo)) {
             el = f;
             fitted = 1;
         }
