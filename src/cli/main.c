@@ -1,5 +1,7 @@
 /* spume command line: parses arguments, calls the library, prints. Nothing else lives here. */
 #include "spume.h"
+#include "cli/args.h"
+#include "cli/commands.h"
 #include "synth/synth.h"
 
 #include <errno.h>
@@ -15,6 +17,10 @@ static const char USAGE[] =
     "\n"
     "  spume measure INPUT --out DIR [options]   detect and measure bubbles in every frame\n"
     "  spume synth SCENARIO --out DIR [options]  render a shadowgraph scene with known truth\n"
+    "  spume listen AUDIO --out DIR [options]    find bubble pings in a sound recording, size them\n"
+    "  spume crosscheck DIR --audio AUDIO        compare acoustic with optical sizes of a measured run\n"
+    "  spume calibrate IMAGE --pitch-mm P --out FILE   scale from an image of a dot-grid target\n"
+    "  spume report DIR                          rebuild the plots and report.html of a measured run\n"
     "  spume version                             print the version\n"
     "  spume help [COMMAND]                      this text, or a command's options\n"
     "\n"
@@ -62,80 +68,7 @@ static const char SYNTH_HELP[] =
     "  --threads N         worker threads (default all cores)\n"
     "  --quiet             no progress on stderr\n";
 
-static int usage_error(const char *cmd, const char *fmt, const char *arg)
-{
-    fprintf(stderr, "spume %s: ", cmd);
-    fprintf(stderr, fmt, arg);
-    fprintf(stderr, " (see 'spume help %s')\n", cmd);
-    return 2;
-}
-
-static int parse_double(const char *cmd, const char *opt, const char *s, double *v)
-{
-    char *end;
-    errno = 0;
-    double d = strtod(s, &end);
-    if (errno || end == s || *end || !isfinite(d)) {
-        fprintf(stderr, "spume %s: %s: '%s' is not a number\n", cmd, opt, s);
-        return 2;
-    }
-    *v = d;
-    return 0;
-}
-
-static int parse_int(const char *cmd, const char *opt, const char *s, long long lo, long long hi,
-                     long long *v)
-{
-    char *end;
-    errno = 0;
-    long long d = strtoll(s, &end, 10);
-    if (errno || end == s || *end || d < lo || d > hi) {
-        fprintf(stderr, "spume %s: %s: '%s' is not a whole number in %lld..%lld\n", cmd, opt, s, lo, hi);
-        return 2;
-    }
-    *v = d;
-    return 0;
-}
-
-typedef struct progress_state {
-    int show;
-    double last;
-} progress_state;
-
-static double wall(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return ts.tv_sec + ts.tv_nsec * 1e-9;
-}
-
-static void on_progress(void *ud, const sp_progress *p)
-{
-    progress_state *ps = ud;
-    if (!ps->show)
-        return;
-    double t = wall();
-    if (t - ps->last < 0.25 && !(p->total > 0 && p->done >= p->total))
-        return;
-    ps->last = t;
-    double rate = p->elapsed_s > 0 ? p->done / p->elapsed_s : 0;
-    if (p->total > 0) {
-        double left = rate > 0 ? (p->total - p->done) / rate : 0;
-        fprintf(stderr, "\r%-10s %lld/%lld frames  %.0f frames/s  %.0f s left   ", p->phase,
-                (long long)p->done, (long long)p->total, rate, left);
-    } else {
-        fprintf(stderr, "\r%-10s %lld frames  %.0f frames/s   ", p->phase, (long long)p->done, rate);
-    }
-    fflush(stderr);
-}
-
-static void end_progress(progress_state *ps)
-{
-    if (ps->show && ps->last > 0)
-        fprintf(stderr, "\r%-70s\r", "");
-}
-
-static int cmd_measure(int argc, char **argv)
+int cmd_measure(int argc, char **argv)
 {
     const char *cmd = "measure", *input = NULL, *out = NULL;
     sp_measure_settings s;
@@ -294,7 +227,7 @@ static void synth_progress(void *ud, int64_t done, int64_t total)
     on_progress(ps, &p);
 }
 
-static int cmd_synth(int argc, char **argv)
+int cmd_synth(int argc, char **argv)
 {
     const char *cmd = "synth", *scenario = NULL, *out = NULL;
     sp_synth_opts o;
@@ -392,8 +325,19 @@ int main(int argc, char **argv)
     const char *c = argv[1];
     if (!strcmp(c, "measure"))
         return cmd_measure(argc - 2, argv + 2);
-    if (!strcmp(c, "synth"))
+    if (!strcmp(c, "synth")) {
+        if (argc > 2 && !strcmp(argv[2], "target"))
+            return cmd_synth_target(argc - 3, argv + 3);
         return cmd_synth(argc - 2, argv + 2);
+    }
+    if (!strcmp(c, "listen"))
+        return cmd_listen(argc - 2, argv + 2);
+    if (!strcmp(c, "crosscheck"))
+        return cmd_crosscheck(argc - 2, argv + 2);
+    if (!strcmp(c, "calibrate"))
+        return cmd_calibrate(argc - 2, argv + 2);
+    if (!strcmp(c, "report"))
+        return cmd_report(argc - 2, argv + 2);
     if (!strcmp(c, "version") || !strcmp(c, "--version")) {
         printf("spume %s\n", SP_VERSION);
         return 0;
@@ -403,7 +347,19 @@ int main(int argc, char **argv)
             fputs(MEASURE_HELP, stdout);
         else if (argc > 2 && !strcmp(argv[2], "synth"))
             fputs(SYNTH_HELP, stdout);
-        else
+        else if (argc > 2) {
+            /* Each remaining command prints its own options for --help. */
+            char *h[] = {"--help", NULL};
+            if (!strcmp(argv[2], "listen"))
+                return cmd_listen(1, h);
+            if (!strcmp(argv[2], "crosscheck"))
+                return cmd_crosscheck(1, h);
+            if (!strcmp(argv[2], "calibrate"))
+                return cmd_calibrate(1, h);
+            if (!strcmp(argv[2], "report"))
+                return cmd_report(1, h);
+            fputs(USAGE, stdout);
+        } else
             fputs(USAGE, stdout);
         return 0;
     }
