@@ -6,7 +6,7 @@ here=$(cd "$(dirname "$0")/.." && pwd)
 pkgs=(build-essential cmake pkg-config
       libavformat-dev libavcodec-dev libavutil-dev libswscale-dev
       libpng-dev libjpeg62-turbo-dev libjansson-dev libswresample-dev
-      ffmpeg python3 python3-numpy python3-scipy python3-skimage python3-pil python3-opencv)
+      ffmpeg chromium python3 python3-numpy python3-scipy python3-skimage python3-pil python3-opencv)
 missing=()
 for p in "${pkgs[@]}"; do
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
