@@ -1,5 +1,5 @@
-/* Encoding grey frames through libavcodec/libavformat. FFV1 is lossless and keeps 16-bit samples,
- * so a synthesised or exported recording decodes to exactly the frames that were written. */
+/* Encoding grey (and, for overlays, RGB) frames through libavcodec/libavformat. FFV1 is lossless and keeps
+ * 16-bit samples, so a synthesised or exported recording decodes to exactly the frames that were written. */
 #include "io/videowriter.h"
 #include "io/source_internal.h" /* sp_ffmpeg_quiet */
 
@@ -65,13 +65,27 @@ static int drain(sp_video_writer *vw, sp_error *err)
     }
 }
 
+/* The first 8-bit RGB layout the encoder accepts; each is a plain rearrangement of R,G,B bytes. */
+static enum AVPixelFormat rgb_format(const AVCodec *codec)
+{
+    static const enum AVPixelFormat pref[] = {AV_PIX_FMT_BGR0, AV_PIX_FMT_RGB24, AV_PIX_FMT_BGR24,
+                                              AV_PIX_FMT_GBRP};
+    if (!codec->pix_fmts)
+        return AV_PIX_FMT_NONE;
+    for (size_t i = 0; i < sizeof pref / sizeof pref[0]; i++)
+        for (const enum AVPixelFormat *f = codec->pix_fmts; *f != AV_PIX_FMT_NONE; f++)
+            if (*f == pref[i])
+                return pref[i];
+    return AV_PIX_FMT_NONE;
+}
+
 int sp_video_writer_open(sp_video_writer **out, const char *path, int w, int h, int bytes,
                          const sp_video_writer_opts *o, sp_error *err)
 {
     int rc = SP_OK, r;
     sp_video_writer *vw = NULL;
     *out = NULL;
-    if (bytes != 1 && bytes != 2)
+    if (bytes != 1 && bytes != 2 && bytes != 3)
         return sp_error_set(err, SP_ERR_INTERNAL, "%s: unsupported sample size %d", path, bytes);
     rc = sp_check_dims(w, h, path, err);
     if (rc)
@@ -112,6 +126,14 @@ int sp_video_writer_open(sp_video_writer **out, const char *path, int w, int h, 
     vw->enc->width = w;
     vw->enc->height = h;
     vw->enc->pix_fmt = bytes == 1 ? AV_PIX_FMT_GRAY8 : AV_PIX_FMT_GRAY16LE;
+    if (bytes == 3) {
+        vw->enc->pix_fmt = rgb_format(codec);
+        if (vw->enc->pix_fmt == AV_PIX_FMT_NONE) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: encoder '%s' takes no 8-bit RGB format", path,
+                              codec_name);
+            goto fail;
+        }
+    }
     vw->enc->time_base = av_inv_q(rate);
     vw->enc->framerate = rate;
     vw->enc->gop_size = 1;
@@ -127,7 +149,7 @@ int sp_video_writer_open(sp_video_writer **out, const char *path, int w, int h, 
         vw->enc->slices = 4;
         /* Golomb–Rice coding: on noisy camera frames it compresses as well as the range coder
          * at about twice the speed. */
-        if (bytes == 1) /* (above 8 bits FFV1 needs the range coder) */
+        if (bytes == 1 || bytes == 3) /* (above 8 bits FFV1 needs the range coder) */
             av_opt_set(vw->enc->priv_data, "coder", "rice", 0);
         /* Version 3 with slice CRCs: robust, multithreadable, standard in archives. */
         av_opt_set_int(vw->enc->priv_data, "slicecrc", 1, 0);
@@ -179,7 +201,7 @@ fail:
 
 int sp_video_writer_put(sp_video_writer *vw, const sp_image *img, sp_error *err)
 {
-    if (!img || img->width != vw->w || img->height != vw->h || img->bytes != vw->bytes)
+    if (!img || vw->bytes == 3 || img->width != vw->w || img->height != vw->h || img->bytes != vw->bytes)
         return sp_error_set(err, SP_ERR_INTERNAL, "%s: frame does not match the video's size or depth",
                             vw->path);
     int r = av_frame_make_writable(vw->frame);
@@ -197,6 +219,45 @@ int sp_video_writer_put(sp_video_writer *vw, const sp_image *img, sp_error *err)
             for (int x = 0; x < vw->w; x++) {
                 dst[2 * x] = (uint8_t)(s16[x] & 0xff);
                 dst[2 * x + 1] = (uint8_t)(s16[x] >> 8);
+            }
+        }
+    }
+    vw->frame->pts = vw->next_pts++;
+    r = avcodec_send_frame(vw->enc, vw->frame);
+    if (r < 0)
+        return av_fail(err, vw->path, "encoding failed", r);
+    return drain(vw, err);
+}
+
+int sp_video_writer_put_rgb(sp_video_writer *vw, const unsigned char *rgb, ptrdiff_t stride, sp_error *err)
+{
+    if (!rgb || vw->bytes != 3)
+        return sp_error_set(err, SP_ERR_INTERNAL, "%s: colour frame for a grey video", vw->path);
+    int r = av_frame_make_writable(vw->frame);
+    if (r < 0)
+        return av_fail(err, vw->path, "cannot reuse the frame buffer", r);
+    enum AVPixelFormat fmt = vw->enc->pix_fmt;
+    for (int y = 0; y < vw->h; y++) {
+        const uint8_t *s = rgb + (ptrdiff_t)y * stride;
+        uint8_t *d0 = vw->frame->data[0] + (ptrdiff_t)y * vw->frame->linesize[0];
+        if (fmt == AV_PIX_FMT_RGB24) {
+            memcpy(d0, s, (size_t)vw->w * 3);
+        } else if (fmt == AV_PIX_FMT_BGR24 || fmt == AV_PIX_FMT_BGR0) {
+            int px = fmt == AV_PIX_FMT_BGR0 ? 4 : 3;
+            for (int x = 0; x < vw->w; x++) {
+                d0[px * x] = s[3 * x + 2];
+                d0[px * x + 1] = s[3 * x + 1];
+                d0[px * x + 2] = s[3 * x];
+                if (px == 4)
+                    d0[px * x + 3] = 0;
+            }
+        } else { /* GBRP: planes G, B, R */
+            uint8_t *d1 = vw->frame->data[1] + (ptrdiff_t)y * vw->frame->linesize[1];
+            uint8_t *d2 = vw->frame->data[2] + (ptrdiff_t)y * vw->frame->linesize[2];
+            for (int x = 0; x < vw->w; x++) {
+                d0[x] = s[3 * x + 1];
+                d1[x] = s[3 * x + 2];
+                d2[x] = s[3 * x];
             }
         }
     }
