@@ -5,6 +5,7 @@
 #include "detect/fill.h"
 #include "detect/label.h"
 #include "detect/normalise.h"
+#include "detect/split.h"
 #include "detect/threshold.h"
 
 #include <stdlib.h>
@@ -113,13 +114,34 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
     double gas = 0;
     for (int i = 0; i < nc; i++) {
         int keep = 0;
-        rc = sp_measure_component(d->ms, &v, d->labels, i + 1, &comps[i], &o->measure, &d->bubbles[n], &keep,
-                                  err);
+        /* Room for this component's pieces, should it be a cluster. */
+        if (n + SP_SPLIT_MAX > d->cap) {
+            int cap = d->cap + (d->cap >> 1) + SP_SPLIT_MAX;
+            sp_bubble *nb = realloc(d->bubbles, sizeof *nb * (size_t)cap);
+            if (!nb)
+                return sp_error_set(err, SP_ERR_INTERNAL, "detect: out of memory for %d bubbles", cap);
+            d->bubbles = nb;
+            d->cap = cap;
+        }
+        sp_bubble *b = &d->bubbles[n];
+        rc = sp_measure_component(d->ms, &v, d->labels, i + 1, &comps[i], &o->measure, b, &keep, err);
         if (rc)
             return rc;
-        if (keep) {
-            gas += d->bubbles[n].area_px;
+        if (!keep)
+            continue;
+        /* The gas area is the cluster's silhouette, counted once whether or not it is split. */
+        gas += b->area_px;
+        sp_bubble whole = *b;
+        int np = 0;
+        rc = sp_measure_split(d->ms, &v, d->labels, i + 1, &comps[i], &o->measure, &whole, b, SP_SPLIT_MAX,
+                              &np, err);
+        if (rc)
+            return rc;
+        if (np == 0) {
+            *b = whole;
             n++;
+        } else {
+            n += np;
         }
     }
     res->bubbles = d->bubbles;

@@ -30,6 +30,9 @@ void sp_edges_release(sp_edges *e)
     free(e->stack);
     free(e->vals);
     free(e->xy);
+    free(e->wid);
+    free(e->pdir);
+    free(e->cpt);
     memset(e, 0, sizeof *e);
 }
 
@@ -213,6 +216,52 @@ static void profile(const sp_frame_view *v, int x, int y, int dx, int dy, double
             }                                                                                                \
         }
 
+/* Nearest upward crossing of `level` at or beyond position t0 (outward) or before it (inward). */
+static double crossing_near(const double s[8], double level, double t0)
+{
+    double best = NAN, bd = 1e30;
+    for (int k = -3; k < 4; k++) {
+        double s0 = s[k + 3], s1 = s[k + 4];
+        if (s0 < level && s1 >= level) {
+            double t = k + (level - s0) / (s1 - s0);
+            if (fabs(t - t0) < bd) {
+                bd = fabs(t - t0);
+                best = t;
+            }
+        }
+    }
+    return best;
+}
+
+/* One outline pair: the crossing t (samples along the pair direction from the component pixel),
+ * the inner level of its local step (NaN if unread) and the width between the 25 % and 75 % crossings
+ * of that step (NaN if either falls off the profile). Returns 0 when no crossing was found. */
+static int pair_point(const sp_frame_view *v, int x, int y, int dx, int dy, double glevel, double light,
+                      double frac, double *t_out, double *nin_out, double *w_out)
+{
+    double s[8];
+    profile(v, x, y, dx, dy, s);
+    double t = crossing(s, glevel);
+    *nin_out = NAN;
+    *w_out = NAN;
+    if (isnan(t))
+        return 0;
+    double nin = profile_at(s, t - SP_EDGE_INSET_PX);
+    if (isfinite(nin) && nin < light) {
+        double t2 = crossing(s, nin + frac * (light - nin));
+        if (!isnan(t2))
+            t = t2;
+        *nin_out = nin;
+        /* Sharpness: the width of the central half of the same local step. */
+        double step = light - nin;
+        double t25 = crossing_near(s, nin + 0.25 * step, t), t75 = crossing_near(s, nin + 0.75 * step, t);
+        if (!isnan(t25) && !isnan(t75) && t75 >= t25)
+            *w_out = t75 - t25;
+    }
+    *t_out = t;
+    return 1;
+}
+
 int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, double frac, sp_error *err)
 {
@@ -226,29 +275,96 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
      * the crossing of the component-wide level to the light. */
     size_t nin_n = 0;
     FOR_OUTLINE_PAIRS(e, labels, w, h, label, c, {
-        double s[8];
-        profile(v, x, y, dx, dy, s);
-        double t = crossing(s, glevel);
-        if (isnan(t))
+        double t;
+        double nin;
+        double wd;
+        if (!pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd))
             continue;
-        double nin = profile_at(s, t - SP_EDGE_INSET_PX);
-        if (isfinite(nin) && nin < light) {
-            double t2 = crossing(s, nin + frac * (light - nin));
-            if (!isnan(t2))
-                t = t2;
+        if (isfinite(nin)) {
             if ((rc = reserve((void **)&e->vals, &e->vals_cap, nin_n + 1, sizeof(float), err)))
                 return rc;
             e->vals[nin_n++] = (float)nin;
         }
-        if ((rc = reserve((void **)&e->xy, &e->xy_cap, 2 * ((size_t)e->n + 1), sizeof(double), err)))
+        size_t need = (size_t)e->n + 1;
+        if ((rc = reserve((void **)&e->xy, &e->xy_cap, 2 * need, sizeof(double), err)))
             return rc;
+        if (need > e->aux_cap) {
+            size_t cap = e->aux_cap;
+            size_t cap2 = e->aux_cap;
+            if ((rc = reserve((void **)&e->wid, &cap, need, sizeof(float), err)) ||
+                (rc = reserve((void **)&e->pdir, &cap2, 2 * need, 1, err)))
+                return rc;
+            e->aux_cap = cap < cap2 / 2 ? cap : cap2 / 2;
+        }
         e->xy[2 * e->n] = x + t * dx;
         e->xy[2 * e->n + 1] = y + t * dy;
+        e->wid[e->n] = (float)wd;
+        e->pdir[2 * e->n] = (int8_t)dx;
+        e->pdir[2 * e->n + 1] = (int8_t)dy;
         e->n++;
     })
     /* Median inner level of the local steps, for the partial-coverage area. */
     e->n_step_in = nin_n ? quantile(e->vals, nin_n, 0.5) : e->n_dark;
     return SP_OK;
+}
+
+/* Inside for the trace: any window cell not reached from outside (component or enclosed). */
+static inline int trace_in(const sp_edges *e, int x, int y)
+{
+    return ext_at(e, x, y) != 2;
+}
+
+int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
+                   const sp_component *c, double frac, sp_error *err)
+{
+    /* Directions clockwise on screen (y down): E, S, W, N. */
+    static const int D[4][2] = {{1, 0}, {0, 1}, {-1, 0}, {0, -1}};
+    int w = v->frame->width, h = v->frame->height;
+    const double light = e->n_light, glevel = e->n_dark + frac * (light - e->n_dark);
+    e->nc = 0;
+    /* Start: the first component pixel in raster order; its north side faces the exterior. */
+    int sx = -1, sy = c->y0;
+    for (int x = c->x0; x <= c->x1; x++)
+        if (labels[(size_t)sy * w + x] == label) {
+            sx = x;
+            break;
+        }
+    if (sx < 0)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has no pixel on its top row", label);
+    size_t maxc = 4 * (size_t)c->area + 4 * (size_t)(e->ww + e->wh) + 8;
+    int x = sx, y = sy, d = 3, rc;
+    for (size_t it = 0; it < maxc; it++) {
+        if ((rc = reserve((void **)&e->cpt, &e->c_cap, (size_t)e->nc + 1, sizeof(sp_contour_pt), err)))
+            return rc;
+        int dx = D[d][0], dy = D[d][1];
+        double t = 0, nin, wd = NAN;
+        int ok = lab_at(labels, w, h, x + dx, y + dy) >= 0 &&
+                 pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd) && fabs(t) <= 2.5;
+        sp_contour_pt *q = &e->cpt[e->nc++];
+        q->x = ok ? x + t * dx : x + 0.5 * dx;
+        q->y = ok ? y + t * dy : y + 0.5 * dy;
+        q->wid = ok ? (float)wd : NAN;
+        q->dx = (int8_t)dx;
+        q->dy = (int8_t)dy;
+        q->ok = (uint8_t)ok;
+        /* Walk along this crack in direction d+1 (exterior on the left); the diagonal cell first so
+         * the object is 8-connected, as labelled. */
+        int m = (d + 1) & 3;
+        int ax = x + D[m][0] + dx, ay = y + D[m][1] + dy, bx = x + D[m][0], by = y + D[m][1];
+        if (trace_in(e, ax, ay)) {
+            x = ax;
+            y = ay;
+            d = (d + 3) & 3;
+        } else if (trace_in(e, bx, by)) {
+            x = bx;
+            y = by;
+        } else {
+            d = m;
+        }
+        if (x == sx && y == sy && d == 3)
+            return SP_OK;
+    }
+    return sp_error_set(err, SP_ERR_INTERNAL, "measure: contour of component %d does not close", label);
 }
 
 double sp_edges_area(const sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,

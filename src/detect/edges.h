@@ -28,6 +28,14 @@
  * edge pixel's own partial coverage and still on a grey shoulder of a pixel or more. */
 #define SP_EDGE_INSET_PX 1.2
 
+/* One crack of the traced outer contour. */
+typedef struct sp_contour_pt {
+    double x, y;   /* sub-pixel crossing, or the crack midpoint where none was found */
+    float wid;     /* 25..75 % width of the local step along (dx, dy), px; NaN if unmeasured */
+    int8_t dx, dy; /* pair direction, component pixel towards the exterior */
+    uint8_t ok;    /* 1 when (x, y) is a sub-pixel crossing */
+} sp_contour_pt;
+
 typedef struct sp_edges {
     /* Padded bounding-box window: component bbox grown by 1 px on every side. */
     int wx0, wy0, ww, wh;
@@ -39,7 +47,15 @@ typedef struct sp_edges {
     size_t vals_cap;
     double *xy; /* sub-pixel outline points, n pairs */
     size_t xy_cap;
+    float *wid;     /* per point: width of the central half (25..75 %) of the local step along the pair
+                       direction, px; NaN where a crossing fell off the profile */
+    int8_t *pdir;   /* per point: pair direction dx, dy (2 entries) */
+    size_t aux_cap; /* points held by wid and pdir */
     int n;
+    /* Ordered outer contour (sp_edges_trace): one entry per boundary crack, in walking order. */
+    sp_contour_pt *cpt;
+    size_t c_cap;
+    int nc;
     float n_dark, n_light, n_min; /* levels found by sp_edges_levels */
     float n_step_in;              /* median inner level of the local steps (sp_edges_points) */
 } sp_edges;
@@ -57,6 +73,13 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
 /* Sub-pixel points where n crosses `level` on the outer outline (after sp_edges_exterior). */
 int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, double level, sp_error *err);
+
+/* The outer contour in walking order (crack following with the exterior on the left, 8-connected
+ * object), each crack carrying the sub-pixel crossing of the same pair as sp_edges_points, into
+ * cpt / nc. Call after sp_edges_points (it uses n_step_in only through the same local-step rule).
+ * Bounded by 4·area + 4 cracks. */
+int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
+                   const sp_component *c, double frac, sp_error *err);
 
 /* Area of the outline at the edge level from partial coverage: pixels of the component count 1,
  * except the band along the outline (component pixels 8-adjacent to the exterior, and exterior

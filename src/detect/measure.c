@@ -6,7 +6,9 @@
  * area from partial coverage, since too few outline points remain there to pin five parameters. */
 #include "detect/measure.h"
 #include "detect/edges.h"
+#include "detect/focus.h"
 #include "detect/hull.h"
+#include "detect/split.h"
 
 #include <math.h>
 #include <stdint.h>
@@ -19,6 +21,9 @@
 
 struct sp_measurer {
     sp_edges edges;
+    sp_splitter *splitter;
+    float *scratch; /* per outline point, for the sharpness median */
+    size_t scratch_cap;
     int32_t *pts; /* hull input and work space */
     size_t pts_cap;
 };
@@ -29,11 +34,19 @@ void sp_measure_opts_default(sp_measure_opts *o)
     o->max_diam_px = 0.0;
     o->fit_min_px = 8.0;
     o->edge_level = 0.5;
+    o->min_sharpness = SP_FOCUS_MIN_SHARPNESS_DEFAULT;
+    o->split = 1;
+    o->split_solidity = 0.9;
 }
 
 sp_measurer *sp_measurer_new(void)
 {
-    return calloc(1, sizeof(sp_measurer));
+    sp_measurer *m = calloc(1, sizeof(sp_measurer));
+    if (m && !(m->splitter = sp_splitter_new())) {
+        free(m);
+        return NULL;
+    }
+    return m;
 }
 
 void sp_measurer_free(sp_measurer *m)
@@ -41,6 +54,8 @@ void sp_measurer_free(sp_measurer *m)
     if (!m)
         return;
     sp_edges_release(&m->edges);
+    sp_splitter_free(m->splitter);
+    free(m->scratch);
     free(m->pts);
     free(m);
 }
@@ -92,6 +107,66 @@ static int fit_plausible(const sp_ellipse *f, const sp_ellipse *mo)
         return 0;
     double ra = f->a / mo->a, rb = f->b / mo->b;
     return ra > 0.67 && ra < 1.5 && rb > 0.67 && rb < 1.5;
+}
+
+/* Standard uncertainty of an equivalent diameter d (px), from three independent parts added in
+ * quadrature (GUM, JCGM 100:2008, law of propagation for uncorrelated inputs):
+ *  - fit: outline points scatter rms about the ellipse; n points of which neighbours share pixels
+ *    (about n/2 independent) pin the mean radius to rms/sqrt(n/2), the diameter to twice that, and
+ *    an arc that covers only part of the outline (span < 1, split pieces) pins it less well;
+ *  - quantisation: the pixel grid and the edge-level interpolation leave a position error of order
+ *    0.05 px on a sharp edge and about an eighth of the edge width W = 0.5 / sharpness on a blurred
+ *    one, common to the whole outline, so it does not average out;
+ *  - blur: a defocus disc moves the half-step contour of a curved outline by about W²/d (the
+ *    outline's curvature times the square of the edge width), taken as a standard uncertainty
+ *    rather than corrected because the disc's shape is not known.
+ * The constants were set on rendered discs (tests/unit/test_detect_focus.c), not on the scenes the
+ * coverage test uses. */
+static double diam_uncertainty(double d, double rms, int n, double span, double sharpness, int fitted)
+{
+    double W = sharpness > 0 ? 0.5 / sharpness : 2.0;
+    double u_fit = 0;
+    if (fitted && n > 0)
+        u_fit = 2.0 * rms * sqrt(2.0 / n) / sqrt(span > 0.1 ? span : 0.1);
+    else
+        u_fit = 0.25; /* moment ellipse rescaled to a partial-coverage area: no outline residual */
+    double u_q = hypot(0.05, 0.125 * W);
+    double u_b = d > 0 ? W * W / d : 0;
+    return sqrt(u_fit * u_fit + u_q * u_q + u_b * u_b + (0.002 * d) * (0.002 * d));
+}
+
+/* RMS geometric residual of the outline points about el. */
+static double fit_rms(const sp_edges *e, const sp_ellipse *el)
+{
+    double ss = 0;
+    for (int i = 0; i < e->n; i++) {
+        double d = sp_ellipse_distance(el, e->xy[2 * i], e->xy[2 * i + 1]);
+        ss += d * d;
+    }
+    return e->n ? sqrt(ss / e->n) : 0;
+}
+
+static int reserve_scratch(sp_measurer *m, size_t n, sp_error *err)
+{
+    if (n <= m->scratch_cap)
+        return SP_OK;
+    float *p = realloc(m->scratch, n * sizeof *p);
+    if (!p)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: out of memory for %zu outline points", n);
+    m->scratch = p;
+    m->scratch_cap = n;
+    return SP_OK;
+}
+
+static double tilt_of(const sp_ellipse *el)
+{
+    /* Image angles run from +x towards +y (down); the contract counts counter-clockwise with y up. */
+    double tilt = -el->theta * 180.0 / M_PI;
+    if (tilt <= -90.0)
+        tilt += 180.0;
+    if (tilt > 90.0)
+        tilt -= 180.0;
+    return tilt;
 }
 
 int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *labels, int label,
@@ -160,19 +235,23 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
     if (rc)
         return rc;
 
+    /* Sharpness of the outline against the ellipse it was sized with. */
+    double sharp = 0, rms = 0;
+    if (e->n > 0) {
+        if ((rc = reserve_scratch(m, (size_t)e->n, err)))
+            return rc;
+        sharp = sp_focus_sharpness(e->xy, e->wid, e->pdir, e->n, &el, m->scratch);
+        if (fitted)
+            rms = fit_rms(e, &el);
+    }
+
     memset(out, 0, sizeof *out);
     out->x = c->cx;
     out->y = c->cy;
     out->area_px = (double)c->area;
     out->major_px = 2.0 * el.a;
     out->minor_px = 2.0 * el.b;
-    /* Image angles run from +x towards +y (down); the contract counts counter-clockwise with y up. */
-    double tilt = -el.theta * 180.0 / M_PI;
-    if (tilt <= -90.0)
-        tilt += 180.0;
-    if (tilt > 90.0)
-        tilt -= 180.0;
-    out->tilt_deg = tilt;
+    out->tilt_deg = tilt_of(&el);
     out->d_area_px = sqrt(4.0 * area / M_PI);
     out->d_vol_px = cbrt(out->major_px * out->major_px * out->minor_px);
     out->aspect = out->minor_px / out->major_px;
@@ -182,10 +261,77 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
     out->edge = c->border != 0;
     out->split = 0;
     out->fit = fitted;
+    out->sharpness = sharp;
+    out->in_focus = sharp >= o->min_sharpness;
+    out->u_d_px = diam_uncertainty(out->d_vol_px, rms, e->n, 1.0, sharp, fitted);
     out->x0 = c->x0;
     out->y0 = c->y0;
     out->x1 = c->x1;
     out->y1 = c->y1;
     *keep = 1;
+    return SP_OK;
+}
+
+int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labels, int label,
+                     const sp_component *c, const sp_measure_opts *o, sp_bubble *whole, sp_bubble *pieces,
+                     int max, int *np, sp_error *err)
+{
+    *np = 0;
+    whole->cluster = 0;
+    sp_edges *e = &m->edges;
+    /* Cut outlines cannot be split reliably (and are left out of statistics anyway). */
+    if (!o->split || whole->edge || !(e->n_light - e->n_dark > 1e-3))
+        return SP_OK;
+    const int w = v->frame->width;
+    int rc = sp_edges_trace(e, v, labels, label, c, o->edge_level, err);
+    if (rc)
+        return rc;
+    if ((rc = reserve_scratch(m, (size_t)e->nc, err)))
+        return rc;
+    sp_split_piece pc[SP_SPLIT_MAX];
+    int n = 0, status = SP_SPLIT_SINGLE;
+    if ((rc = sp_split_contour(m->splitter, e, labels, w, label, pc, &n, &status, err)))
+        return rc;
+    if (status == SP_SPLIT_FAILED || (status == SP_SPLIT_DONE && n > max) ||
+        (status == SP_SPLIT_SINGLE && whole->d_area_px >= 10.0 && whole->solidity < o->split_solidity)) {
+        whole->cluster = 1;
+        return SP_OK;
+    }
+    if (status != SP_SPLIT_DONE)
+        return SP_OK;
+    for (int i = 0; i < n; i++) {
+        const sp_ellipse *el = &pc[i].el;
+        sp_bubble *b = &pieces[i];
+        *b = *whole;
+        b->x = el->cx;
+        b->y = el->cy;
+        b->area_px = M_PI * el->a * el->b;
+        b->major_px = 2.0 * el->a;
+        b->minor_px = 2.0 * el->b;
+        b->tilt_deg = tilt_of(el);
+        b->d_area_px = 2.0 * sqrt(el->a * el->b);
+        b->d_vol_px = cbrt(b->major_px * b->major_px * b->minor_px);
+        b->aspect = el->b / el->a;
+        b->split = label;
+        b->fit = 1;
+        b->cluster = 0;
+        b->sharpness = pc[i].sharpness;
+        b->in_focus = pc[i].sharpness >= o->min_sharpness;
+        b->u_d_px = diam_uncertainty(b->d_vol_px, pc[i].rms_px, pc[i].npts, pc[i].span, pc[i].sharpness, 1);
+        double hx, hy;
+        double ct = cos(el->theta), st = sin(el->theta);
+        hx = sqrt(el->a * el->a * ct * ct + el->b * el->b * st * st);
+        hy = sqrt(el->a * el->a * st * st + el->b * el->b * ct * ct);
+        b->x0 = (int)floor(el->cx - hx + 0.5);
+        b->y0 = (int)floor(el->cy - hy + 0.5);
+        b->x1 = (int)floor(el->cx + hx + 0.5);
+        b->y1 = (int)floor(el->cy + hy + 0.5);
+        /* Within the cluster's own box. */
+        b->x0 = b->x0 < whole->x0 ? whole->x0 : b->x0;
+        b->y0 = b->y0 < whole->y0 ? whole->y0 : b->y0;
+        b->x1 = b->x1 > whole->x1 ? whole->x1 : b->x1;
+        b->y1 = b->y1 > whole->y1 ? whole->y1 : b->y1;
+    }
+    *np = n;
     return SP_OK;
 }
