@@ -306,10 +306,10 @@ void sp_plot_vline(sp_plot *p, double x, const char *color, const char *dash, co
     sp_sbuf_puts(p->b, "/>\n");
     if (label && label[0]) {
         sp_sbuf_printf(p->b,
-                       "<text x=\"%.2f\" y=\"%.1f\" font-size=\"11\" fill=\"%s\" text-anchor=\"start\" "
+                       "<text x=\"%.2f\" y=\"%.1f\" font-size=\"11\" fill=\"%s\" text-anchor=\"end\" "
                        "transform=\"rotate(-90 %.2f %.1f)\">",
                        X - 3, p->mt + 4, color, X - 3, p->mt + 4);
-        /* rotated: the label runs down the line from the top */
+        /* rotated a quarter turn: the label reads upward, ending at the top */
         sp_sbuf_esc(p->b, label);
         sp_sbuf_puts(p->b, "</text>\n");
     }

@@ -906,7 +906,7 @@ static const char *css =
     "table.data td{text-align:right}caption{text-align:left;font-weight:bold;padding:4px 0}"
     "table.kv th{background:#f4f6f8;font-weight:normal;font-family:monospace}"
     ".figs{display:flex;flex-wrap:wrap;gap:16px}figure.fig{margin:0;border:1px solid #ddd;padding:6px;"
-    "background:#fff;max-width:640px}figcaption{font-size:12px;color:#444;max-width:600px}"
+    "background:#fff}figcaption{font-size:12px;color:#444;max-width:520px}"
     ".thumbs{display:flex;flex-wrap:wrap;gap:12px}.thumb{margin:0;max-width:600px}"
     ".thumb img{max-width:100%;border:1px solid #999;image-rendering:auto}"
     ".absent{color:#777;font-style:italic}.note{color:#555;font-size:12px}"
