@@ -10,7 +10,7 @@
 #define PI 3.14159265358979323846
 #define MAX_TRACKS 2000000
 
-static const char *const scenario_names[] = {"sizing", "plume", "column", "nucleation", NULL};
+static const char *const scenario_names[] = {"sizing", "plume", "column", "nucleation", "nozzle", NULL};
 
 static const char desc_sizing[] = "isolated still bubbles, diameters log-uniform 4-160 px, some out of focus "
                                   "or cut by the frame edge, for checking sizing";
@@ -23,6 +23,11 @@ static const char desc_nucleation[] =
     "glass wall seen through a carbonated liquid: six nucleation sites emitting "
     "trains at 3-25 Hz of 0.045-0.2 mm bubbles that grow and speed up as "
     "they rise, for site and growth tests";
+
+static const char desc_nozzle[] =
+    "two nozzles in view release 1-4 mm bubbles at irregular intervals, with a paired hydrophone "
+    "recording (audio.wav: one ping per detachment, clicks, noise, a hidden clock offset), for the "
+    "acoustic cross-check";
 
 const char *const *sp_synth_scenarios(void)
 {
@@ -41,6 +46,8 @@ const char *sp_synth_describe(const char *scenario)
         return desc_column;
     if (strcmp(scenario, "nucleation") == 0)
         return desc_nucleation;
+    if (strcmp(scenario, "nozzle") == 0)
+        return desc_nozzle;
     return NULL;
 }
 
@@ -575,22 +582,137 @@ static int build_nucleation(synth_scene *sc, uint64_t seed, sp_error *err)
     return SP_OK;
 }
 
+/* nozzle: two needles whose tips sit just inside the bottom of the picture release bubbles one at a
+ * time, at irregular intervals (a minimum gap, so their pings never overlap, plus an exponential
+ * wait), the small-bore needle 1-2 mm bubbles, the wide one 2-4 mm. A bubble is drawn from its
+ * pinch-off on (the growth on the tip is not drawn, nor the needles); each pinch-off is also a ping
+ * in the paired recording, whose clock runs ahead of the video's by a hidden offset. */
+static int build_nozzle(synth_scene *sc, uint64_t seed, sp_error *err)
+{
+    enum { NN = 2 };
+    const double d_lo[NN] = {1.0, 2.0}, d_hi[NN] = {2.0, 4.0}; /* mm, log-uniform */
+    const double z_noz[NN] = {-0.4, 0.6};
+    const double gap_min_s = 0.035, gap_mean_s = 0.025; /* interval = gap_min + Exp(gap_mean) */
+    double s = sc->mm_per_px, fps = sc->fps;
+    int w = sc->width, h = sc->height;
+    double t_end = (double)(sc->frames - 1) / fps;
+    uint64_t ka = rng_key(seed, RNG_EMIT, 300, 0);
+    sc->audio_rate = 48000;
+    sc->audio_offset_s = rng_range(ka, 0, 0.1, 0.5);
+    sc->audio_len_s = sc->audio_offset_s + t_end + 0.3;
+    sc->noise_rms = 0.002;
+    sc->depth_m = 0.15;
+    if (sc->audio_len_s * sc->audio_rate > 5e8)
+        return sp_error_set(err, SP_ERR_INPUT, "synth: nozzle: %lld frames make a recording too long",
+                            (long long)sc->frames);
+    synth_site *site = calloc(NN, sizeof *site);
+    if (!site)
+        return sp_error_set(err, SP_ERR_INTERNAL, "synth: nozzle: out of memory");
+    double tip_y = h - 1.0 - 6.0;
+    for (int k = 0; k < NN; k++) {
+        site[k].x_px = w * (k + 1.0) / (NN + 1.0);
+        site[k].rate_hz = 1.0 / (NN * (gap_min_s + gap_mean_s));
+        site[k].d_detach_mm = sqrt(d_lo[k] * d_hi[k]);
+    }
+    /* Emission starts early enough that bubbles fill the picture at frame 0 and the recording
+     * starts in the middle of the train; it goes on past the last frame while the audio runs. */
+    double t_start = -fmax((h * s + 6.0) * 1e-3 / 0.2, sc->audio_offset_s);
+    double t_stop = sc->audio_len_s - sc->audio_offset_s - 0.1;
+    size_t cap = 0, n = 0, pcap = 0, np = 0;
+    synth_track *t = NULL;
+    synth_ping *pg = NULL;
+    double te = t_start + gap_mean_s * rng_unit(ka, 1);
+    for (uint64_t e = 0; te <= t_stop; e++) {
+        uint64_t kb = rng_key(seed, RNG_BUBBLE, 300, e);
+        int k = rng_unit(kb, 0) < 0.5 ? 0 : 1;
+        double d_mm = d_lo[k] * pow(d_hi[k] / d_lo[k], rng_unit(kb, 1));
+        if (np == pcap) {
+            size_t nc = pcap ? 2 * pcap : 64;
+            synth_ping *nq = realloc(pg, nc * sizeof *nq);
+            if (!nq) {
+                free(t);
+                free(pg);
+                free(site);
+                return sp_error_set(err, SP_ERR_INTERNAL, "synth: nozzle: out of memory for %zu pings", nc);
+            }
+            pg = nq;
+            pcap = nc;
+        }
+        synth_ping *p = &pg[np++];
+        p->t_video_s = te;
+        p->r_mm = 0.5 * d_mm;
+        p->snr_db = rng_range(kb, 2, 20.0, 35.0);
+        p->nozzle = k + 1;
+        p->track = 0;
+        if (te <= t_end) {
+            int rc = SP_OK;
+            synth_track *tr = push_track(&t, &n, &cap, "nozzle", sc->frames, &rc, err);
+            if (!tr) {
+                free(t);
+                free(pg);
+                free(site);
+                return rc;
+            }
+            double u = fmin(0.3, fmax(0.2, rise_speed_m_s(d_mm) * (1.0 + 0.04 * rng_normal(kb, 3))));
+            tr->source = k + 1;
+            tr->d_vol_px = d_mm / s;
+            tr->aspect = wellek_aspect(d_mm);
+            tr->aspect_amp = 0.02 + 0.02 * rng_unit(kb, 4);
+            tr->t0 = te;
+            tr->x0 = site[k].x_px;
+            tr->y0 = tip_y - 0.5 * tr->d_vol_px / tr->aspect;
+            tr->vy = -u * 1e3 / s;
+            tr->vx = rng_normal(kb, 5) * 10.0 / s;
+            /* The wobble starts at zero displacement: the bubble leaves the tip on its axis. */
+            tr->wob_amp = (0.1 + 0.15 * d_mm) * rng_range(kb, 6, 0.6, 1.2) / s;
+            tr->wob_hz = rng_range(kb, 7, 6.0, 11.0);
+            tr->wob_ph = rng_unit(kb, 8) < 0.5 ? 0.0 : PI;
+            tr->tilt0 = 5.0 * rng_normal(kb, 9);
+            tr->tilt_amp = d_mm > 2.0 ? rng_range(kb, 10, 8.0, 20.0) : rng_range(kb, 10, 0.0, 6.0);
+            tr->z_mm = z_noz[k] + 0.3 * rng_normal(kb, 11);
+            random_look(tr, kb);
+            tr->ping = np;
+            int64_t fb = (int64_t)ceil(te * fps);
+            if (track_extent(sc, tr, fb)) {
+                tr->born = tr->f_first == fb;
+                tr->site = tr->born ? k + 1 : 0;
+            } else {
+                n--;
+            }
+        }
+        te += gap_min_s - gap_mean_s * log(rng_unit(kb, 12));
+    }
+    for (int k = 0; k < NN; k++)
+        site[k].y_px = tip_y - 0.5 * site[k].d_detach_mm / s / wellek_aspect(site[k].d_detach_mm);
+    finish_tracks(sc, t, n);
+    for (size_t i = 0; i < n; i++)
+        if (t[i].ping)
+            pg[t[i].ping - 1].track = t[i].id;
+    sc->sites = site;
+    sc->nsites = NN;
+    sc->pings = pg;
+    sc->npings = np;
+    return SP_OK;
+}
+
 int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc, sp_error *err)
 {
     memset(sc, 0, sizeof *sc);
     if (!name || !sp_synth_describe(name))
         return sp_error_set(err, SP_ERR_INPUT,
-                            "synth: unknown scenario '%s' (try sizing, plume, column or nucleation)",
+                            "synth: unknown scenario '%s' (try sizing, plume, column, nucleation or nozzle)",
                             name ? name : "");
     enum {
         SIZING,
         PLUME,
         COLUMN,
-        NUCLEATION
-    } kind = strcmp(name, "sizing") == 0   ? SIZING
-             : strcmp(name, "plume") == 0  ? PLUME
-             : strcmp(name, "column") == 0 ? COLUMN
-                                           : NUCLEATION;
+        NUCLEATION,
+        NOZZLE
+    } kind = strcmp(name, "sizing") == 0       ? SIZING
+             : strcmp(name, "plume") == 0      ? PLUME
+             : strcmp(name, "column") == 0     ? COLUMN
+             : strcmp(name, "nucleation") == 0 ? NUCLEATION
+                                               : NOZZLE;
     const char *const *names = sp_synth_scenarios();
     sc->name = names[kind];
     sc->description = sp_synth_describe(name);
@@ -620,6 +742,15 @@ int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc,
         sc->mm_per_px = 0.05;
         sc->exposure_s = 1.0 / 5000.0;
         sc->dof_mm = 3.0;
+        sc->blur_px_per_mm = 1.0 / 1.5;
+    } else if (kind == NOZZLE) {
+        sc->width = 400;
+        sc->height = 560; /* 20 x 28 mm: 1 mm is 20 px */
+        sc->frames = 800;
+        sc->fps = 400.0; /* 2 s; 0.2-0.3 m/s is 10-15 px per frame */
+        sc->mm_per_px = 0.05;
+        sc->exposure_s = 1.0 / 8000.0;
+        sc->dof_mm = 4.0;
         sc->blur_px_per_mm = 1.0 / 1.5;
     } else {
         sc->width = 512;
@@ -655,6 +786,8 @@ int synth_scene_build(const char *name, const sp_synth_opts *o, synth_scene *sc,
         return build_plume(sc, o->seed, err);
     case COLUMN:
         return build_column(sc, o->seed, err);
+    case NOZZLE:
+        return build_nozzle(sc, o->seed, err);
     default:
         return build_nucleation(sc, o->seed, err);
     }
@@ -666,5 +799,6 @@ void synth_scene_free(synth_scene *sc)
         return;
     free(sc->tracks);
     free(sc->sites);
+    free(sc->pings);
     memset(sc, 0, sizeof *sc);
 }

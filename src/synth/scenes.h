@@ -24,6 +24,7 @@ typedef struct synth_track {
     double d_vol_px, aspect, aspect_amp, tilt0, tilt_amp;
     double z_mm; /* distance from the focal plane */
     double band, shoulder, spot, spot_frac, spot_u, spot_v;
+    size_t ping; /* 1 + index of its detachment ping in the scene's list, or 0 */
 } synth_track;
 
 /* A bubble in one frame, in pixels. */
@@ -40,6 +41,15 @@ typedef struct synth_site {
     double growth_mm_s; /* mean growth rate of the diameter after detachment (2·dR/dt) */
 } synth_site;
 
+/* The sound of one detachment (scenes with audio). */
+typedef struct synth_ping {
+    double t_video_s; /* detachment (pinch-off) time on the video clock */
+    double r_mm;      /* volume-equivalent radius of the detached bubble */
+    double snr_db;    /* A^2 / (2 noise variance), full band */
+    int nozzle;       /* 1-based */
+    int track;        /* truth track id, or 0 when the bubble is never in the picture */
+} synth_ping;
+
 typedef struct synth_scene {
     const char *name, *description;
     int width, height;
@@ -53,6 +63,14 @@ typedef struct synth_scene {
     int64_t max_life;  /* longest f_last - f_first + 1, for finding the live tracks */
     synth_site *sites; /* nucleation sites in view (truth_sites.csv), owned; NULL if none */
     size_t nsites;
+    /* Paired audio (nozzle scene): pings sorted by time, owned; NULL when the scene is silent. */
+    synth_ping *pings;
+    size_t npings;
+    int audio_rate;        /* samples per second */
+    double audio_offset_s; /* audio clock = video clock + this (the audio started earlier) */
+    double audio_len_s;    /* length of the recording */
+    double noise_rms;      /* white background noise, full scale */
+    double depth_m;        /* depth of the nozzle below the free surface */
 } synth_scene;
 
 /* Terminal rise speed (mm/s) of a small bubble of diameter d_mm in water at 20 °C that behaves as

@@ -3,6 +3,7 @@
  * written in order; every random value comes from a counter-based generator keyed by (seed,
  * frame, pixel), so output is byte-identical at any thread count. */
 #include "synth/synth.h"
+#include "synth/audio.h"
 #include "synth/rng.h"
 #include "synth/scenes.h"
 #include "io/png.h"
@@ -565,8 +566,19 @@ static void write_scene_json(FILE *f, const synth_scene *sc, const sp_synth_opts
     fprintf(f, "  \"exposure_s\": %.6g,\n", sc->exposure_s);
     fprintf(f, "  \"defocus_blur_px_per_mm\": %.6g,\n", sc->blur_px_per_mm);
     fprintf(f, "  \"tracks\": %zu,\n  \"truth_rows\": %lld,\n", ntracks, (long long)rows);
-    fprintf(f, "  \"frames_png\": %s,\n  \"video\": %s\n", o->png ? "\"frames/frame_%05d.png\"" : "null",
-            o->video ? "\"video.mkv\"" : "null");
+    fprintf(f, "  \"frames_png\": %s,\n  \"video\": %s%s\n", o->png ? "\"frames/frame_%05d.png\"" : "null",
+            o->video ? "\"video.mkv\"" : "null", sc->pings ? "," : "");
+    if (sc->pings) {
+        /* The audio's truth: its clock runs ahead of the video's by the offset. */
+        fprintf(f, "  \"audio\": \"audio.wav\",\n  \"audio_sample_rate\": %d,\n", sc->audio_rate);
+        fprintf(f, "  \"audio_offset_s\": %.9g,\n", sc->audio_offset_s);
+        fprintf(f, "  \"audio_clock_rule\": \"t_audio_s = t_video_s + audio_offset_s\",\n");
+        fprintf(f, "  \"audio_length_s\": %.9g,\n  \"noise_rms\": %.6g,\n", sc->audio_len_s, sc->noise_rms);
+        fprintf(f, "  \"depth_m\": %.6g,\n", sc->depth_m);
+        fprintf(f,
+                "  \"ping_model\": \"Minnaert with Devin surface tension and Prosperetti thermal exponent, "
+                "water 20 C, air; damping delta from REFERENCES.md model values\"\n");
+    }
     fprintf(f, "}\n");
 }
 
@@ -804,6 +816,8 @@ int sp_synth_run(const char *scenario, const char *outdir, const sp_synth_opts *
     } else {
         unlink(p_sit); /* no sites: a table left by an earlier run would mislead */
     }
+    if (sc.pings && (rc = synth_audio_write(&sc, o.seed, outdir, err)))
+        goto fail;
     size_t ntr = 0;
     for (size_t i = 0; i < sc.ntracks; i++)
         ntr += acc[i].n > 0;
