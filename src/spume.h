@@ -16,7 +16,7 @@
 #define SP_VERSION "0.1.0"
 
 /* Hard caps on frame geometry, checked on every header value before any allocation. */
-#define SP_MAX_DIM 16384                 /* widest or tallest frame accepted, pixels */
+#define SP_MAX_DIM 16384                   /* widest or tallest frame accepted, pixels */
 #define SP_MAX_PIXELS (64LL * 1024 * 1024) /* largest frame accepted, pixels (64 Mpx) */
 
 /* ---------------------------------------------------------------- errors */
@@ -108,35 +108,52 @@ void sp_source_close(sp_source *s);
 /* ---------------------------------------------------------------- the measure job */
 
 typedef struct sp_progress {
-    const char *phase;    /* "background" or "detect" */
-    int64_t done, total;  /* frames; total -1 if unknown */
-    double elapsed_s;     /* since the phase began */
+    const char *phase;   /* "background" or "detect" */
+    int64_t done, total; /* frames; total -1 if unknown */
+    double elapsed_s;    /* since the phase began */
 } sp_progress;
 
 typedef void (*sp_progress_fn)(void *ud, const sp_progress *p);
 
 typedef struct sp_measure_settings {
-    sp_source_opts source; /* frame rate override, selection, region of interest */
-    double mm_per_px;      /* scale; 0 = uncalibrated (millimetre columns then hold pixels) */
+    sp_source_opts source;  /* frame rate override, selection, region of interest */
+    double mm_per_px;       /* scale; 0 = uncalibrated (millimetre columns then hold pixels) */
+    const char *calib_file; /* a calibration file from `spume calibrate`: its scale replaces mm_per_px */
 
     /* Background (the light without bubbles). */
-    const char *bg_image;  /* an image of the empty field; NULL = estimate from the recording */
-    int bg_frames;         /* frames sampled per estimate (default 40, at most 255) */
-    double bg_percentile;  /* per-pixel percentile of the samples (default 50 = median) */
-    int bg_segments;       /* estimates spread along the run and interpolated in time, to follow
-                              slow drift of the light (default 1) */
+    const char *bg_image; /* an image of the empty field; NULL = estimate from the recording */
+    int bg_frames;        /* frames sampled per estimate (default 40, at most 255) */
+    double bg_percentile; /* per-pixel percentile of the samples (default 50 = median) */
+    int bg_segments;      /* estimates spread along the run and interpolated in time, to follow
+                             slow drift of the light (default 1) */
 
     /* Detection. */
-    double threshold;      /* transmission below which a pixel is bubble (default 0.7) */
-    int otsu;              /* 1: Otsu's threshold per frame instead (default 0) */
-    int flicker;           /* 1: compensate each frame's overall light level (default 1) */
-    int fill;              /* 1: fill the refraction spot (default 1) */
-    double min_diam_px;    /* size gates on the area-equivalent diameter (defaults 3, 0 = none) */
+    double threshold;   /* transmission below which a pixel is bubble (default 0.7) */
+    int otsu;           /* 1: Otsu's threshold per frame instead (default 0) */
+    int flicker;        /* 1: compensate each frame's overall light level (default 1) */
+    int fill;           /* 1: fill the refraction spot (default 1) */
+    double min_diam_px; /* size gates on the area-equivalent diameter (defaults 3, 0 = none) */
     double max_diam_px;
-    double fit_min_px;     /* sub-pixel edge fit from this diameter up (default 8) */
-    double edge_level;     /* edge where transmission crosses this fraction of the local step (0.5) */
+    double fit_min_px; /* sub-pixel edge fit from this diameter up (default 8) */
+    double edge_level; /* edge where transmission crosses this fraction of the local step (0.5) */
 
-    int threads;           /* worker threads, 0 = OpenMP default */
+    /* Tracking, the liquid, statistics. */
+    int track;                     /* 1: link bubbles into tracks (default 1) */
+    int max_gap;                   /* frames in a row a track may miss (default 3) */
+    const char *liquid;            /* liquid preset name or JSON file (default "water") */
+    double temp_c;                 /* liquid temperature, °C (default 20) */
+    const char *const *liquid_set; /* "key=value" overrides of the liquid's properties */
+    int nliquid_set;
+    double depth_m;              /* depth of the observed bubbles below the free surface (default 0) */
+    double illum_depth_mm;       /* depth of the illuminated volume, for volume holdup and interfacial
+                                    area (0 = unknown, default) */
+    int boot;                    /* bootstrap replicates for confidence intervals (default 1000, 0 = none) */
+    int bins;                    /* size histogram bins (default 20) */
+    int bins_log;                /* log-spaced bins (default 0) */
+    double bin_lo_mm, bin_hi_mm; /* histogram range (default 0, 0 = from the data) */
+    const char *calib_dir;       /* where liquid presets live (calib/; NULL = built-in default) */
+
+    int threads;             /* worker threads, 0 = OpenMP default */
     sp_progress_fn progress; /* may be NULL; called from the calling thread */
     void *progress_ud;
 } sp_measure_settings;
@@ -144,15 +161,18 @@ typedef struct sp_measure_settings {
 void sp_measure_settings_default(sp_measure_settings *s);
 
 typedef struct sp_measure_report {
-    int64_t frames;        /* frames analysed */
-    int64_t detections;    /* bubble rows written */
-    double fps;            /* frame rate used */
-    double holdup;         /* mean projected gas fraction of the region */
-    int width, height;     /* analysed region */
+    int64_t frames;     /* frames analysed */
+    int64_t detections; /* bubble rows written */
+    int64_t tracks;     /* tracks written */
+    int64_t sites;      /* nucleation sites found */
+    double d32_mm;      /* Sauter mean over tracks (NaN if none) */
+    double fps;         /* frame rate used */
+    double holdup;      /* mean projected gas fraction of the region */
+    int width, height;  /* analysed region */
 } sp_measure_report;
 
-/* Run detection over INPUT and write outdir/bubbles.csv, outdir/frames.csv and
- * outdir/summary.json (each under a temporary name, renamed when complete). */
+/* Run detection and tracking over INPUT and write outdir/bubbles.csv, frames.csv, tracks.csv,
+ * sites.csv and summary.json (each under a temporary name, renamed when complete). */
 int sp_measure(const char *input, const char *outdir, const sp_measure_settings *s, sp_measure_report *rep,
                sp_error *err);
 

@@ -38,6 +38,7 @@ static const char MEASURE_HELP[] =
     "  --roi X,Y,W,H       region of interest in pixels (default the whole frame)\n"
     "Scale\n"
     "  --scale MM_PER_PX   millimetres per pixel (without it the mm columns hold pixels)\n"
+    "  --calib FILE        the scale from a calibration file written by 'spume calibrate'\n"
     "Background (the light with no bubble in front of it)\n"
     "  --background FILE   an image of the empty field instead of an estimate from the frames\n"
     "  --bg-frames N       frames sampled for the estimate (default 40, at most 255)\n"
@@ -51,6 +52,18 @@ static const char MEASURE_HELP[] =
     "  --max-diam-px D     drop bubbles larger than D px (default no limit)\n"
     "  --fit-min-px D      sub-pixel edge fit from D px up (default 8)\n"
     "  --edge-level F      edge where transmission crosses F of the local step (default 0.5)\n"
+    "Tracks, liquid and statistics\n"
+    "  --no-track          do not link bubbles into tracks (no tracks.csv, sites.csv)\n"
+    "  --max-gap N         frames in a row a track may miss and still continue (default 3)\n"
+    "  --liquid NAME|FILE  liquid preset (water, seawater, carbonated) or JSON file (default water)\n"
+    "  --temp C            liquid temperature in degrees Celsius (default 20)\n"
+    "  --liquid-set K=V    override one liquid property, e.g. sigma_n_m=0.050 (repeatable)\n"
+    "  --depth-m M         depth of the bubbles below the free surface (default 0)\n"
+    "  --illum-depth-mm L  depth of the illuminated volume: gives volume holdup and interfacial area\n"
+    "  --boot N            bootstrap replicates for confidence intervals (default 1000, 0 = none)\n"
+    "  --bins N            size histogram bins (default 20)\n"
+    "  --bins-log          log-spaced histogram bins\n"
+    "  --bin-range LO,HI   histogram range in mm (default: the data's)\n"
     "Running\n"
     "  --threads N         worker threads (default all cores)\n"
     "  --quiet             no progress or summary on stderr\n";
@@ -74,6 +87,8 @@ int cmd_measure(int argc, char **argv)
     sp_measure_settings s;
     sp_measure_settings_default(&s);
     int quiet = 0;
+    enum { MAX_SET = 32 };
+    const char *liquid_set[MAX_SET];
     for (int i = 0; i < argc; i++) {
         const char *a = argv[i];
         const char *v = i + 1 < argc ? argv[i + 1] : NULL;
@@ -127,6 +142,68 @@ int cmd_measure(int argc, char **argv)
             if (sscanf(v, "%d,%d,%d,%d%c", &x, &y, &w, &h, &tail) != 4 || x < 0 || y < 0 || w < 1 || h < 1)
                 return usage_error(cmd, "--roi wants X,Y,W,H in pixels with W,H >= 1, not '%s'", v);
             s.source.roi = (sp_roi){x, y, w, h};
+        } else if (!strcmp(a, "--calib")) {
+            NEED_VALUE();
+            s.calib_file = v;
+        } else if (!strcmp(a, "--no-track")) {
+            s.track = 0;
+        } else if (!strcmp(a, "--max-gap")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 0, 1000, &n))
+                return 2;
+            s.max_gap = (int)n;
+        } else if (!strcmp(a, "--liquid")) {
+            NEED_VALUE();
+            s.liquid = v;
+        } else if (!strcmp(a, "--temp")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d > -5 && d < 150))
+                return usage_error(cmd, "--temp wants degrees Celsius of a liquid, not '%s'", v);
+            s.temp_c = d;
+        } else if (!strcmp(a, "--liquid-set")) {
+            NEED_VALUE();
+            if (s.nliquid_set >= MAX_SET)
+                return usage_error(cmd, "--liquid-set given more than 32 times ('%s')", v);
+            liquid_set[s.nliquid_set++] = v;
+            s.liquid_set = liquid_set;
+        } else if (!strcmp(a, "--depth-m")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d >= 0 && d < 11000))
+                return usage_error(cmd, "--depth-m wants metres below the surface, not '%s'", v);
+            s.depth_m = d;
+        } else if (!strcmp(a, "--illum-depth-mm")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d > 0 && d < 1e6))
+                return usage_error(cmd, "--illum-depth-mm must be positive, not '%s'", v);
+            s.illum_depth_mm = d;
+        } else if (!strcmp(a, "--boot")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 0, 1000000, &n))
+                return 2;
+            if (n > 0 && n < 10)
+                return usage_error(cmd, "--boot wants 0 (none) or at least 10 replicates, not '%s'", v);
+            s.boot = (int)n;
+        } else if (!strcmp(a, "--bins")) {
+            NEED_VALUE();
+            if (parse_int(cmd, a, v, 1, 10000, &n))
+                return 2;
+            s.bins = (int)n;
+        } else if (!strcmp(a, "--bins-log")) {
+            s.bins_log = 1;
+        } else if (!strcmp(a, "--bin-range")) {
+            NEED_VALUE();
+            double lo, hi;
+            char tail;
+            if (sscanf(v, "%lf,%lf%c", &lo, &hi, &tail) != 2 || !(lo >= 0) || !(hi > lo))
+                return usage_error(cmd, "--bin-range wants LO,HI in mm with 0 <= LO < HI, not '%s'", v);
+            s.bin_lo_mm = lo;
+            s.bin_hi_mm = hi;
         } else if (!strcmp(a, "--background")) {
             NEED_VALUE();
             s.bg_image = v;
@@ -200,6 +277,8 @@ int cmd_measure(int argc, char **argv)
         return usage_error(cmd, "%s", "no INPUT given");
     if (!out)
         return usage_error(cmd, "%s", "no --out DIR given");
+    if (s.calib_file && s.mm_per_px > 0)
+        return usage_error(cmd, "%s", "give either --scale or --calib, not both");
 
     progress_state ps = {!quiet && isatty(2), 0};
     s.progress = on_progress;
@@ -215,8 +294,9 @@ int cmd_measure(int argc, char **argv)
     }
     if (!quiet)
         fprintf(stderr,
-                "spume measure: %lld frames (%dx%d), %lld bubbles, mean holdup %.4f -> %s/bubbles.csv\n",
-                (long long)rep.frames, rep.width, rep.height, (long long)rep.detections, rep.holdup, out);
+                "spume measure: %lld frames (%dx%d), %lld bubbles in %lld tracks, mean holdup %.4f -> %s/\n",
+                (long long)rep.frames, rep.width, rep.height, (long long)rep.detections,
+                (long long)rep.tracks, rep.holdup, out);
     return 0;
 }
 

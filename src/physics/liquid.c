@@ -452,8 +452,9 @@ int sp_liquid_preset_in(const char *calib_dir, const char *name_or_path, double 
     }
     if (!strcmp(name_or_path, "water"))
         return sp_liquid_water(isfinite(temp_c) ? temp_c : 20.0, out, err);
-    if (dirs[0])
-        return sp_error_set(err, SP_ERR_INPUT, "%s/%s.json: no such liquid preset", dirs[0], name_or_path);
+    for (int i = 0; i < 2; i++)
+        if (dirs[i])
+            return sp_error_set(err, SP_ERR_INPUT, "%s/%s.json: no such liquid preset", dirs[i], name_or_path);
     return sp_error_set(
         err, SP_ERR_INPUT,
         "liquid preset '%s': no preset directory (set SPUME_CALIB_DIR to the folder holding liquids/)",

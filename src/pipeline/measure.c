@@ -3,17 +3,23 @@
  * flight and the background samples, never by the length of the recording. */
 #include "spume.h"
 
+#include "calib/calfile.h"
 #include "core/jsonw.h"
 #include "core/outfile.h"
 #include "detect/background.h"
 #include "detect/detect.h"
 #include "pipeline/identity.h"
+#include "pipeline/tracking.h"
 
 #include <math.h>
 #include <omp.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+
+#ifndef M_PI
+#define M_PI 3.14159265358979323846
+#endif
 
 #define MAX_BATCH 64
 #define BG_MEMORY_CAP (1024LL * 1024 * 1024) /* bytes of background samples held at once */
@@ -35,6 +41,12 @@ void sp_measure_settings_default(sp_measure_settings *s)
     s->max_diam_px = d.measure.max_diam_px;
     s->fit_min_px = d.measure.fit_min_px;
     s->edge_level = d.measure.edge_level;
+    s->track = 1;
+    s->max_gap = 3;
+    s->liquid = "water";
+    s->temp_c = 20;
+    s->boot = 1000;
+    s->bins = 20;
 }
 
 static double now_s(void)
@@ -227,6 +239,7 @@ typedef struct slot {
     int64_t index;
     double t;
     sp_bubble *bub;
+    int64_t *ids;
     int n, cap;
     double gain, level, gas_px;
     int rc;
@@ -237,6 +250,7 @@ typedef struct totals {
     int64_t frames, detections, used;
     double s1, s2, s3, s4; /* sums of d, d², d³, d⁴ (mm) over non-edge detections */
     double holdup_sum;
+    double volume_sum; /* summed over frames: gas volume fraction of the illuminated volume */
     double t_first, t_last;
 } totals;
 
@@ -249,12 +263,14 @@ static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings
     for (int i = 0; i < sl->n; i++) {
         const sp_bubble *b = &sl->bub[i];
         double x = b->x + ox, y = b->y + oy;
-        fprintf(f,
-                "%lld,%.6f,0,%.3f,%.3f,%.6g,%.6g,%.0f,%.6g,%.6g,%.2f,%.6g,%.6g,%.4f,%d,%d,%.3f,%.3f,%.4f,%."
-                "3f,%d\n",
-                (long long)sl->index, sl->t, x, y, x * sc, (info->full_height - 1 - y) * sc, b->area_px,
-                b->major_px * sc, b->minor_px * sc, b->tilt_deg, b->d_area_px * sc, b->d_vol_px * sc,
-                b->aspect, b->edge, b->split, b->major_px, b->minor_px, b->solidity, b->contrast, b->fit);
+        fprintf(
+            f,
+            "%lld,%.6f,%lld,%.3f,%.3f,%.6g,%.6g,%.0f,%.6g,%.6g,%.2f,%.6g,%.6g,%.4f,%d,%d,%.3f,%.3f,%.4f,%."
+            "3f,%d\n",
+            (long long)sl->index, sl->t, (long long)sl->ids[i], x, y, x * sc,
+            (info->full_height - 1 - y) * sc, b->area_px, b->major_px * sc, b->minor_px * sc, b->tilt_deg,
+            b->d_area_px * sc, b->d_vol_px * sc, b->aspect, b->edge, b->split, b->major_px, b->minor_px,
+            b->solidity, b->contrast, b->fit);
         if (!b->edge) {
             double d = b->d_vol_px * sc;
             tot->used++;
@@ -271,8 +287,9 @@ static const char BUBBLE_HEADER[] =
     "d_area_mm,d_vol_mm,aspect,edge,split,major_px,minor_px,solidity,contrast,"
     "fit\n";
 
-static void write_summary(FILE *f, const char *input, const sp_measure_settings *s,
-                          const sp_source_info *info, const bgset *bg, const totals *tot, double fps)
+static int write_summary(FILE *f, const char *input, const sp_measure_settings *s, const sp_source_info *info,
+                         const bgset *bg, const totals *tot, double fps, const sp_trackrun *tr,
+                         const sp_liquid *liq, const sp_calib_result *cal, sp_error *err)
 {
     sp_jsonw j;
     sp_jsonw_init(&j, f);
@@ -288,16 +305,39 @@ static void write_summary(FILE *f, const char *input, const sp_measure_settings 
     else
         sp_jsonw_null(&j);
     sp_jsonw_kbool(&j, "calibrated", s->mm_per_px > 0);
-    sp_jsonw_kint(&j, "tracks", 0);
-    sp_jsonw_kint(&j, "detections", tot->detections);
-    /* Means over tracks (one diameter per track) need the linker; until it runs they are null and
-     * the detection-based means below stand in, named for what they are. */
-    const char *track_keys[] = {"d10_mm", "d32_mm", "d43_mm"};
-    for (int i = 0; i < 3; i++) {
-        sp_jsonw_key(&j, track_keys[i]);
-        sp_jsonw_null(&j);
+    sp_jsonw_key(&j, "calibration");
+    sp_jsonw_obj(&j);
+    if (cal) {
+        sp_jsonw_kstr(&j, "source", "file");
+        sp_jsonw_kstr(&j, "file", s->calib_file);
+        sp_jsonw_kstr(&j, "method", cal->method);
+        sp_jsonw_knum(&j, "mm_per_px_uncertainty", cal->mm_per_px_uncertainty);
+        sp_jsonw_knum(&j, "rotation_deg", cal->rotation_deg);
+        sp_jsonw_kstr(&j, "image", cal->image);
+    } else {
+        sp_jsonw_kstr(&j, "source", s->mm_per_px > 0 ? "scale given" : "none");
     }
+    sp_jsonw_obj_end(&j);
+    sp_jsonw_kint(&j, "tracks", tr ? (int64_t)sp_trackrun_count(tr) : 0);
+    sp_jsonw_kint(&j, "detections", tot->detections);
     sp_jsonw_knum(&j, "holdup", tot->frames ? tot->holdup_sum / tot->frames : NAN);
+    /* Means over tracks (one diameter per track), then the statistics and sites blocks. */
+    double hv =
+        s->illum_depth_mm > 0 && s->mm_per_px > 0 && tot->frames ? tot->volume_sum / tot->frames : NAN;
+    if (tr) {
+        sp_stats_opts so = {s->boot,      s->bins,      s->bins_log,
+                            s->bin_lo_mm, s->bin_hi_mm, tot->frames > 1 ? tot->t_last - tot->t_first : 0,
+                            s->threads};
+        int rc = sp_trackrun_write_summary(tr, &j, &so, hv, err);
+        if (rc)
+            return rc;
+    } else {
+        const char *track_keys[] = {"d10_mm", "d32_mm", "d43_mm"};
+        for (int i = 0; i < 3; i++) {
+            sp_jsonw_key(&j, track_keys[i]);
+            sp_jsonw_null(&j);
+        }
+    }
     sp_jsonw_kint(&j, "detections_in_stats", tot->used);
     /* ISO 9276-2 moment-ratio means D[1,0], D[3,2], D[4,3] over non-edge detections. */
     sp_jsonw_knum(&j, "detections_d10_mm", tot->used ? tot->s1 / tot->used : NAN);
@@ -316,6 +356,21 @@ static void write_summary(FILE *f, const char *input, const sp_measure_settings 
     sp_jsonw_kint(&j, "width", info->width);
     sp_jsonw_kint(&j, "height", info->height);
     sp_jsonw_obj_end(&j);
+
+    if (liq) {
+        sp_jsonw_key(&j, "liquid");
+        sp_jsonw_obj(&j);
+        sp_jsonw_kstr(&j, "name", liq->name);
+        sp_jsonw_knum(&j, "temp_c", liq->temp_c);
+        sp_jsonw_knum(&j, "rho_kg_m3", liq->rho_kg_m3);
+        sp_jsonw_knum(&j, "mu_pa_s", liq->mu_pa_s);
+        sp_jsonw_knum(&j, "sigma_n_m", liq->sigma_n_m);
+        sp_jsonw_knum(&j, "rho_gas_kg_m3", liq->rho_gas_kg_m3);
+        sp_jsonw_knum(&j, "g_m_s2", liq->g_m_s2);
+        sp_jsonw_knum(&j, "p_atm_pa", liq->p_atm_pa);
+        sp_jsonw_knum(&j, "depth_m", liq->depth_m);
+        sp_jsonw_obj_end(&j);
+    }
 
     sp_jsonw_key(&j, "settings");
     sp_jsonw_obj(&j);
@@ -336,8 +391,42 @@ static void write_summary(FILE *f, const char *input, const sp_measure_settings 
     sp_jsonw_knum(&j, "max_diam_px", s->max_diam_px);
     sp_jsonw_knum(&j, "fit_min_px", s->fit_min_px);
     sp_jsonw_knum(&j, "edge_level", s->edge_level);
+    sp_jsonw_kbool(&j, "track", s->track);
+    sp_jsonw_kint(&j, "max_gap", s->max_gap);
+    sp_jsonw_kstr(&j, "liquid", s->liquid);
+    sp_jsonw_knum(&j, "temp_c", s->temp_c);
+    sp_jsonw_key(&j, "liquid_set");
+    sp_jsonw_arr(&j);
+    for (int i = 0; i < s->nliquid_set; i++)
+        sp_jsonw_str(&j, s->liquid_set[i]);
+    sp_jsonw_arr_end(&j);
+    sp_jsonw_knum(&j, "depth_m", s->depth_m);
+    sp_jsonw_knum(&j, "illuminated_depth_mm", s->illum_depth_mm);
+    sp_jsonw_kint(&j, "bootstrap_replicates", s->boot);
+    sp_jsonw_kint(&j, "bins", s->bins);
+    sp_jsonw_kbool(&j, "bins_log", s->bins_log);
+    sp_jsonw_knum(&j, "bin_lo_mm", s->bin_lo_mm);
+    sp_jsonw_knum(&j, "bin_hi_mm", s->bin_hi_mm);
     sp_jsonw_obj_end(&j);
     sp_jsonw_obj_end(&j);
+    return SP_OK;
+}
+
+/* The liquid: a preset (or JSON file) at the temperature, the depth, then key=value overrides. */
+static int load_liquid(const sp_measure_settings *s, sp_liquid *liq, sp_error *err)
+{
+    char dir[4200];
+    const char *cd = NULL;
+    if (s->calib_dir) {
+        snprintf(dir, sizeof dir, "%s/liquids", s->calib_dir);
+        cd = dir;
+    }
+    int rc = sp_liquid_preset_in(cd, s->liquid ? s->liquid : "water", s->temp_c, liq, err);
+    if (!rc && s->depth_m > 0)
+        rc = sp_liquid_set(liq, "depth_m", s->depth_m, err);
+    for (int i = 0; !rc && i < s->nliquid_set; i++)
+        rc = sp_liquid_assign(liq, s->liquid_set[i], err);
+    return rc;
 }
 
 static int slot_store(slot *sl, const sp_detect_result *r)
@@ -347,6 +436,10 @@ static int slot_store(slot *sl, const sp_detect_result *r)
         if (!nb)
             return -1;
         sl->bub = nb;
+        int64_t *ni = realloc(sl->ids, sizeof *ni * (size_t)r->n);
+        if (!ni)
+            return -1;
+        sl->ids = ni;
         sl->cap = r->n;
     }
     if (r->n)
@@ -358,13 +451,26 @@ static int slot_store(slot *sl, const sp_detect_result *r)
     return 0;
 }
 
-int sp_measure(const char *input, const char *outdir, const sp_measure_settings *s, sp_measure_report *rep,
-               sp_error *err)
+int sp_measure(const char *input, const char *outdir, const sp_measure_settings *settings,
+               sp_measure_report *rep, sp_error *err)
 {
+    /* A calibration file supplies the scale; everything below reads it from the settings copy. */
+    sp_measure_settings scopy = *settings;
+    const sp_measure_settings *s = &scopy;
+    sp_calib_result cal;
+    int have_cal = 0;
+    if (settings->calib_file) {
+        int crc = sp_calfile_read(settings->calib_file, &cal, err);
+        if (crc)
+            return crc;
+        scopy.mm_per_px = cal.mm_per_px;
+        have_cal = 1;
+    }
     int rc;
     sp_source *src = NULL;
     bgset bg = {0};
-    sp_outfile ob = {0}, of = {0}, os = {0};
+    sp_outfile ob = {0}, of = {0}, os = {0}, ot = {0}, oz = {0};
+    sp_trackrun *tr = NULL;
     slot *slots = NULL;
     sp_detector **det = NULL;
     float **bgbuf = NULL;
@@ -372,6 +478,9 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     const int nthreads = s->threads > 0 ? s->threads : omp_get_max_threads();
     int batch = nthreads * 4 > MAX_BATCH ? MAX_BATCH : nthreads * 4;
 
+    sp_liquid liq;
+    if ((rc = load_liquid(s, &liq, err)))
+        return rc;
     if ((rc = sp_outdir_prepare(outdir, err)))
         return rc;
     if ((rc = sp_source_open(&src, input, &s->source, err)))
@@ -414,11 +523,27 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         }
     }
 
+    if (s->track) {
+        sp_trackrun_opts to = {s->mm_per_px,
+                               info->full_height,
+                               s->source.roi.w > 0 ? s->source.roi.x : 0,
+                               s->source.roi.h > 0 ? s->source.roi.y : 0,
+                               w,
+                               h,
+                               s->source.fps > 0 ? s->source.fps : info->fps,
+                               s->max_gap,
+                               s->source.start,
+                               &liq};
+        if ((rc = sp_trackrun_new(&tr, &to, err)))
+            goto done;
+    }
     if ((rc = sp_outfile_open(&ob, outdir, "bubbles.csv", err)) ||
         (rc = sp_outfile_open(&of, outdir, "frames.csv", err)))
         goto done;
     fputs(BUBBLE_HEADER, ob.f);
-    fputs("frame,t_s,bubbles,gain,level,gas_fraction\n", of.f);
+    fputs("frame,t_s,bubbles,gain,level,gas_fraction,gas_volume_mm3\n", of.f);
+    const double sc = s->mm_per_px > 0 ? s->mm_per_px : 1.0;
+    const double region_mm3 = s->illum_depth_mm > 0 ? (double)npx * sc * sc * s->illum_depth_mm : NAN;
 
     double t0 = now_s();
     int64_t pos = 0;
@@ -451,6 +576,19 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                     sp_error_set(err, sl->rc, "%s: frame %lld: %s", input, (long long)sl->index, sl->err.msg);
                 goto done;
             }
+            if (tr) {
+                if ((rc = sp_trackrun_frame(tr, sl->index, sl->t, sl->bub, sl->n, sl->ids, err)))
+                    goto done;
+            } else {
+                for (int i = 0; i < sl->n; i++)
+                    sl->ids[i] = 0;
+            }
+            double vol = 0; /* oblate spheroids, mm³ (px³ uncalibrated) */
+            for (int i = 0; i < sl->n; i++) {
+                double dv = sl->bub[i].d_vol_px * sc;
+                vol += M_PI / 6.0 * dv * dv * dv;
+            }
+            tot.volume_sum += vol / region_mm3;
             if (tot.frames == 0)
                 tot.t_first = sl->t;
             tot.t_last = sl->t;
@@ -459,8 +597,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
             double frac = sl->gas_px / (double)npx;
             tot.holdup_sum += frac;
             write_bubble_rows(ob.f, sl, s, info, &tot);
-            fprintf(of.f, "%lld,%.6f,%d,%.5f,%.4f,%.6f\n", (long long)sl->index, sl->t, sl->n, sl->gain,
-                    sl->level, frac);
+            fprintf(of.f, "%lld,%.6f,%d,%.5f,%.4f,%.6f,%.6g\n", (long long)sl->index, sl->t, sl->n, sl->gain,
+                    sl->level, frac, vol);
         }
         pos += nb;
         if (s->progress) {
@@ -477,15 +615,29 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     if (!(fps > 0) && tot.frames > 1 && tot.t_last > tot.t_first)
         fps =
             (tot.frames - 1) / (tot.t_last - tot.t_first) * (double)(s->source.step > 0 ? s->source.step : 1);
+    if (tr) {
+        if ((rc = sp_trackrun_finish(tr, err)))
+            goto done;
+        if ((rc = sp_outfile_open(&ot, outdir, "tracks.csv", err)) ||
+            (rc = sp_outfile_open(&oz, outdir, "sites.csv", err)))
+            goto done;
+        sp_trackrun_write_tracks(tr, ot.f);
+        sp_trackrun_write_sites(tr, oz.f);
+    }
     if ((rc = sp_outfile_open(&os, outdir, "summary.json", err)))
         goto done;
-    write_summary(os.f, input, s, info, &bg, &tot, fps);
+    if ((rc = write_summary(os.f, input, s, info, &bg, &tot, fps, tr, &liq, have_cal ? &cal : NULL, err)))
+        goto done;
     if ((rc = sp_outfile_commit(&ob, err)) || (rc = sp_outfile_commit(&of, err)) ||
+        (tr && ((rc = sp_outfile_commit(&ot, err)) || (rc = sp_outfile_commit(&oz, err)))) ||
         (rc = sp_outfile_commit(&os, err)))
         goto done;
     if (rep) {
         rep->frames = tot.frames;
         rep->detections = tot.detections;
+        rep->tracks = tr ? (int64_t)sp_trackrun_count(tr) : 0;
+        rep->sites = 0;
+        rep->d32_mm = NAN;
         rep->fps = fps;
         rep->holdup = tot.holdup_sum / tot.frames;
         rep->width = w;
@@ -495,10 +647,14 @@ done:
     sp_outfile_abort(&ob);
     sp_outfile_abort(&of);
     sp_outfile_abort(&os);
+    sp_outfile_abort(&ot);
+    sp_outfile_abort(&oz);
+    sp_trackrun_free(tr);
     if (slots)
         for (int k = 0; k < batch; k++) {
             sp_image_free(&slots[k].img);
             free(slots[k].bub);
+            free(slots[k].ids);
         }
     free(slots);
     for (int i = 0; det && i < nthreads; i++) {
