@@ -179,6 +179,7 @@ struct sp_video {
     int64_t first_ts;   /* best-effort timestamp of the first decoded frame, or AV_NOPTS_VALUE */
     int64_t decoded;    /* frames decoded so far */
     int64_t expected;   /* frames the container announces, -1 if it does not */
+    int64_t by_length;  /* frames implied by the announced duration at a constant rate, -1 if unknown */
     int pending;        /* frame holds a decoded frame not yet delivered */
     int flushing, done; /* end of file reached / decoder drained */
     int width, height, bytes;
@@ -205,6 +206,13 @@ static int decode_one(sp_video *v, int *got, sp_error *err)
                                     "%s: video ends after %lld of the %lld frames its header announces "
                                     "(truncated file?)",
                                     v->path, (long long)v->decoded, (long long)v->expected);
+            /* Containers without a frame count (Matroska) still announce a duration: a file that
+             * ends well short of it was cut (slack: rounding of the last frame's duration). */
+            if (v->expected <= 0 && v->by_length > 0 && v->decoded + 2 + v->by_length / 100 < v->by_length)
+                return sp_error_set(err, SP_ERR_INPUT,
+                                    "%s: video ends after %lld frames, its header announces a duration of "
+                                    "about %lld frames (truncated file?)",
+                                    v->path, (long long)v->decoded, (long long)v->by_length);
             return SP_OK;
         }
         if (ret != AVERROR(EAGAIN))
@@ -281,6 +289,7 @@ int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_err
         goto oom;
     v->first_ts = AV_NOPTS_VALUE;
     v->expected = -1;
+    v->by_length = -1;
     int ret = avformat_open_input(&v->fmt, path, NULL, NULL);
     if (ret < 0) {
         rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot open as a video (%s)", path,
@@ -330,6 +339,16 @@ int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_err
     double avg = q2d_or0(st->avg_frame_rate), rfr = q2d_or0(st->r_frame_rate);
     v->fps_guess = avg > 0 ? avg : rfr;
     v->expected = st->nb_frames > 0 ? st->nb_frames : -1;
+    /* Duration of the stream, or of the file when it holds only this stream; at a constant rate
+     * only (average and base rate agree), and only when plausible (below COUNT_PACKETS_MAX). */
+    double dur_s = -1;
+    if (st->duration > 0 && st->time_base.num > 0 && st->time_base.den > 0)
+        dur_s = (double)st->duration * st->time_base.num / st->time_base.den;
+    else if (v->fmt->nb_streams == 1 && v->fmt->duration > 0)
+        dur_s = (double)v->fmt->duration / AV_TIME_BASE;
+    if (dur_s > 0 && avg > 0 && rfr > 0 && fabs(avg - rfr) <= 1e-3 * rfr &&
+        dur_s * avg < (double)COUNT_PACKETS_MAX)
+        v->by_length = llround(dur_s * avg);
 
     int got = 0;
     rc = decode_one(v, &got, err);
