@@ -126,3 +126,202 @@ int sp_bg_from_image(const sp_image *img, float *bg, sp_error *err)
     }
     return SP_OK;
 }
+
+#define POLY_DEG 4
+#define POLY_N 15 /* terms x^i y^j, i + j <= 4 */
+#define GUARD_GRID 4
+#define GUARD_GROW 3
+#define GUARD_RING 6
+
+static void poly_terms(double x, double y, double *t)
+{
+    int k = 0;
+    for (int d = 0; d <= POLY_DEG; d++)
+        for (int j = 0; j <= d; j++)
+            t[k++] = pow(x, d - j) * pow(y, j);
+}
+
+/* Solve the POLY_N normal equations in place by Gaussian elimination with partial pivoting. */
+static int solve(double A[POLY_N][POLY_N], double *b, double *c)
+{
+    for (int i = 0; i < POLY_N; i++) {
+        int p = i;
+        for (int r = i + 1; r < POLY_N; r++)
+            if (fabs(A[r][i]) > fabs(A[p][i]))
+                p = r;
+        if (fabs(A[p][i]) < 1e-12)
+            return -1;
+        if (p != i) {
+            for (int k = 0; k < POLY_N; k++) {
+                double t = A[i][k];
+                A[i][k] = A[p][k];
+                A[p][k] = t;
+            }
+            double t = b[i];
+            b[i] = b[p];
+            b[p] = t;
+        }
+        for (int r = i + 1; r < POLY_N; r++) {
+            double f = A[r][i] / A[i][i];
+            for (int k = i; k < POLY_N; k++)
+                A[r][k] -= f * A[i][k];
+            b[r] -= f * b[i];
+        }
+    }
+    for (int i = POLY_N - 1; i >= 0; i--) {
+        double s = b[i];
+        for (int k = i + 1; k < POLY_N; k++)
+            s -= A[i][k] * c[k];
+        c[i] = s / A[i][i];
+    }
+    return 0;
+}
+
+static double poly_at(const double *c, double x, double y)
+{
+    double t[POLY_N], s = 0;
+    poly_terms(x, y, t);
+    for (int k = 0; k < POLY_N; k++)
+        s += c[k] * t[k];
+    return s;
+}
+
+int sp_bg_guard_still(float *bg, int w, int h, double level, double max_frac, int *n_filled, sp_error *err)
+{
+    int rc = sp_check_dims(w, h, "background guard", err);
+    if (rc)
+        return rc;
+    if (n_filled)
+        *n_filled = 0;
+    if (w < 2 * GUARD_GRID || h < 2 * GUARD_GRID)
+        return SP_OK;
+    const size_t npx = (size_t)w * (size_t)h;
+    const double sx = 2.0 / (w - 1), sy = 2.0 / (h - 1);
+    double c[POLY_N] = {0};
+    /* Robust fit: all grid points first, then only those not more than 10 % below the surface. */
+    for (int it = 0; it < 5; it++) {
+        double A[POLY_N][POLY_N] = {{0}}, b[POLY_N] = {0}, t[POLY_N], cn[POLY_N];
+        long used = 0;
+        for (int y = GUARD_GRID / 2; y < h; y += GUARD_GRID)
+            for (int x = GUARD_GRID / 2; x < w; x += GUARD_GRID) {
+                double v = bg[(size_t)y * w + x], X = x * sx - 1, Y = y * sy - 1;
+                if (it > 0 && v < 0.9 * poly_at(c, X, Y))
+                    continue;
+                poly_terms(X, Y, t);
+                for (int i = 0; i < POLY_N; i++) {
+                    for (int k = i; k < POLY_N; k++)
+                        A[i][k] += t[i] * t[k];
+                    b[i] += t[i] * v;
+                }
+                used++;
+            }
+        if (used < 4 * POLY_N)
+            break;
+        for (int i = 0; i < POLY_N; i++)
+            for (int k = 0; k < i; k++)
+                A[i][k] = A[k][i];
+        if (solve(A, b, cn))
+            break;
+        memcpy(c, cn, sizeof c);
+    }
+    float *fit = malloc(sizeof *fit * npx);
+    uint8_t *mk = calloc(npx, 1); /* 1 dark, 2 dark and seen, 3 to refill */
+    int32_t *stack = malloc(sizeof *stack * npx);
+    if (!fit || !mk || !stack) {
+        rc = sp_error_set(err, SP_ERR_INTERNAL, "background guard: out of memory for %dx%d", w, h);
+        goto fail;
+    }
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++) {
+            size_t i = (size_t)y * w + x;
+            fit[i] = (float)poly_at(c, x * sx - 1, y * sy - 1);
+            mk[i] = fit[i] > 0 && bg[i] < level * fit[i];
+        }
+    /* One blob at a time (8-connected flood), in raster order so the result is deterministic. */
+    for (size_t s0 = 0; s0 < npx; s0++) {
+        if (mk[s0] != 1)
+            continue;
+        size_t sp = 0, area = 0;
+        int border = 0, bx0 = w, by0 = h, bx1 = -1, by1 = -1;
+        mk[s0] = 2;
+        stack[sp++] = (int32_t)s0;
+        while (sp) {
+            int32_t i = stack[--sp];
+            int x = i % w, y = i / w;
+            area++;
+            border |= x == 0 || y == 0 || x == w - 1 || y == h - 1;
+            bx0 = x < bx0 ? x : bx0;
+            by0 = y < by0 ? y : by0;
+            bx1 = x > bx1 ? x : bx1;
+            by1 = y > by1 ? y : by1;
+            for (int dy = -1; dy <= 1; dy++)
+                for (int dx = -1; dx <= 1; dx++) {
+                    int xx = x + dx, yy = y + dy;
+                    if (xx < 0 || yy < 0 || xx >= w || yy >= h)
+                        continue;
+                    size_t j = (size_t)yy * w + xx;
+                    if (mk[j] == 1) {
+                        mk[j] = 2;
+                        stack[sp++] = (int32_t)j;
+                    }
+                }
+        }
+        if (border || (double)area > max_frac * (double)npx) {
+            for (int y = by0; y <= by1; y++) /* kept: set aside so no later blob takes it as its own */
+                for (int x = bx0; x <= bx1; x++)
+                    if (mk[(size_t)y * w + x] == 2)
+                        mk[(size_t)y * w + x] = 5;
+            continue;
+        }
+        /* Light ratio just around the blob: pixels of the grown box that are neither dark nor rim. */
+        int gx0 = bx0 - GUARD_RING, gy0 = by0 - GUARD_RING, gx1 = bx1 + GUARD_RING, gy1 = by1 + GUARD_RING;
+        gx0 = gx0 < 0 ? 0 : gx0;
+        gy0 = gy0 < 0 ? 0 : gy0;
+        gx1 = gx1 >= w ? w - 1 : gx1;
+        gy1 = gy1 >= h ? h - 1 : gy1;
+        double rs = 0;
+        long rn = 0;
+        for (int y = gy0; y <= gy1; y++)
+            for (int x = gx0; x <= gx1; x++) {
+                size_t i = (size_t)y * w + x;
+                int near = 0;
+                for (int yy = y - GUARD_GROW; yy <= y + GUARD_GROW && !near; yy++)
+                    for (int xx = x - GUARD_GROW; xx <= x + GUARD_GROW && !near; xx++)
+                        near = xx >= 0 && yy >= 0 && xx < w && yy < h && mk[(size_t)yy * w + xx] >= 1;
+                if (!near && fit[i] > 0) {
+                    rs += bg[i] / fit[i];
+                    rn++;
+                }
+            }
+        double r = rn ? rs / rn : 1.0;
+        for (int y = by0 - GUARD_GROW; y <= by1 + GUARD_GROW; y++)
+            for (int x = bx0 - GUARD_GROW; x <= bx1 + GUARD_GROW; x++) {
+                if (x < 0 || y < 0 || x >= w || y >= h)
+                    continue;
+                int near = 0;
+                for (int yy = y - GUARD_GROW; yy <= y + GUARD_GROW && !near; yy++)
+                    for (int xx = x - GUARD_GROW; xx <= x + GUARD_GROW && !near; xx++)
+                        near = xx >= 0 && yy >= 0 && xx < w && yy < h && mk[(size_t)yy * w + xx] == 2;
+                if (near)
+                    mk[(size_t)y * w + x] = mk[(size_t)y * w + x] == 2 ? 2 : 3;
+            }
+        for (int y = by0 - GUARD_GROW; y <= by1 + GUARD_GROW; y++)
+            for (int x = bx0 - GUARD_GROW; x <= bx1 + GUARD_GROW; x++) {
+                if (x < 0 || y < 0 || x >= w || y >= h)
+                    continue;
+                size_t i = (size_t)y * w + x;
+                if (mk[i] == 2 || mk[i] == 3) {
+                    bg[i] = (float)(r * fit[i]);
+                    mk[i] = 4; /* done: neither dark nor refilled again */
+                }
+            }
+        if (n_filled)
+            (*n_filled)++;
+    }
+    rc = SP_OK;
+fail:
+    free(fit);
+    free(mk);
+    free(stack);
+    return rc;
+}

@@ -22,6 +22,18 @@ int sp_bg_builder_count(const sp_bg_builder *b);
 int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nthreads, sp_error *err);
 void sp_bg_builder_free(sp_bg_builder *b);
 
+/* Guard for bubbles that sit still (on a wall, at a nozzle) through most of the sampled frames: the
+ * percentile then shows them as part of the light, and the detector would never see them. Fit a
+ * smooth surface to the light (a least-squares polynomial of degree 4 in x and y, refitted without
+ * the points more than 10 % below it, so dark spots do not pull it down), mark background pixels
+ * darker than `level` × that surface, and refill each marked blob — grown by 3 px to take its
+ * blurred rim — from the surface scaled to the light just around it. Blobs that touch the frame
+ * border or cover more than max_frac of the frame (walls, nozzles, vignetted corners) are kept as
+ * they are. Faint dust (transmission above `level`) stays in the background and is divided out as
+ * before; an opaque speck darker than `level` becomes a still object in every frame.
+ * Defaults: level 0.5, max_frac 0.02. *n_filled = blobs refilled (may be NULL). */
+int sp_bg_guard_still(float *bg, int w, int h, double level, double max_frac, int *n_filled, sp_error *err);
+
 /* Background straight from one image of the empty field (a frame recorded with no bubbles). */
 int sp_bg_from_image(const sp_image *img, float *bg, sp_error *err);
 

@@ -22,7 +22,9 @@
 struct sp_measurer {
     sp_edges edges;
     sp_splitter *splitter;
-    float *scratch; /* per outline point, for the sharpness median */
+    float *scratch;  /* per outline point, for the sharpness median */
+    double last_rms; /* outline residual of the last measured component's fitted ellipse (0 if not fitted) */
+    double last_ab;  /* its a·b */
     size_t scratch_cap;
     int32_t *pts; /* hull input and work space */
     size_t pts_cap;
@@ -129,10 +131,10 @@ static double diam_uncertainty(double d, double rms, int n, double span, double 
     if (fitted && n > 0)
         u_fit = 2.0 * rms * sqrt(2.0 / n) / sqrt(span > 0.1 ? span : 0.1);
     else
-        u_fit = 0.25; /* moment ellipse rescaled to a partial-coverage area: no outline residual */
-    double u_q = hypot(0.05, 0.125 * W);
+        u_fit = 0.12; /* moment ellipse rescaled to a partial-coverage area: no outline residual */
+    double u_q = hypot(0.03, 0.28 * W);
     double u_b = d > 0 ? W * W / d : 0;
-    return sqrt(u_fit * u_fit + u_q * u_q + u_b * u_b + (0.002 * d) * (0.002 * d));
+    return sqrt(u_fit * u_fit + u_q * u_q + u_b * u_b);
 }
 
 /* RMS geometric residual of the outline points about el. */
@@ -245,6 +247,8 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
             rms = fit_rms(e, &el);
     }
 
+    m->last_rms = rms;
+    m->last_ab = el.a * el.b;
     memset(out, 0, sizeof *out);
     out->x = c->cx;
     out->y = c->cy;
@@ -272,6 +276,49 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
     return SP_OK;
 }
 
+/* Normalised transmission at a sub-pixel point, bilinear; NaN off the frame. */
+static double view_bilinear(const sp_frame_view *v, double x, double y)
+{
+    int x0 = (int)floor(x), y0 = (int)floor(y);
+    if (x0 < 0 || y0 < 0 || x0 + 1 >= v->frame->width || y0 + 1 >= v->frame->height)
+        return NAN;
+    double fx = x - x0, fy = y - y0;
+    return (1 - fy) * ((1 - fx) * sp_view_norm(v, x0, y0) + fx * sp_view_norm(v, x0 + 1, y0)) +
+           fy * ((1 - fx) * sp_view_norm(v, x0, y0 + 1) + fx * sp_view_norm(v, x0 + 1, y0 + 1));
+}
+
+/* Does piece i's free outline (the part no other piece covers) run along the image's edge? The median
+ * transmission there, as a fraction of the step, must sit near the edge level: a piece drawn too large
+ * or too small over its hidden side shows up where its outline is free. */
+static int piece_on_edge(const sp_frame_view *v, const sp_edges *e, const sp_split_piece *pc, int np, int i,
+                         double frac, float *scratch)
+{
+    const sp_ellipse *el = &pc[i].el;
+    double step = (double)e->n_light - (double)e->n_step_in;
+    int m = 0;
+    for (int k = 0; k < 64; k++) {
+        double t = 2 * M_PI * k / 64, ct = cos(el->theta), st = sin(el->theta);
+        double u = el->a * cos(t), w = el->b * sin(t);
+        double x = el->cx + u * ct - w * st, y = el->cy + u * st + w * ct;
+        int covered = 0;
+        for (int j = 0; j < np && !covered; j++)
+            covered = j != i && sp_ellipse_distance(&pc[j].el, x, y) < 1.5;
+        double n = covered ? NAN : view_bilinear(v, x, y);
+        if (isfinite(n))
+            scratch[m++] = (float)((n - e->n_step_in) / step - frac);
+    }
+    if (m < 8)
+        return 0;
+    /* Median by partial insertion sort: m is at most 64. */
+    for (int a = 1; a < m; a++)
+        for (int b = a; b > 0 && scratch[b] < scratch[b - 1]; b--) {
+            float t = scratch[b];
+            scratch[b] = scratch[b - 1];
+            scratch[b - 1] = t;
+        }
+    return fabs(scratch[m / 2]) <= 0.2;
+}
+
 int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labels, int label,
                      const sp_component *c, const sp_measure_opts *o, sp_bubble *whole, sp_bubble *pieces,
                      int max, int *np, sp_error *err)
@@ -292,13 +339,23 @@ int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labe
     int n = 0, status = SP_SPLIT_SINGLE;
     if ((rc = sp_split_contour(m->splitter, e, labels, w, label, pc, &n, &status, err)))
         return rc;
+    /* Not one ellipse either: the outline leaves the fitted ellipse by more than edge noise explains. */
+    int not_ellipse = whole->fit && m->last_rms > 0.3 + 0.01 * sqrt(m->last_ab);
     if (status == SP_SPLIT_FAILED || (status == SP_SPLIT_DONE && n > max) ||
-        (status == SP_SPLIT_SINGLE && whole->d_area_px >= 10.0 && whole->solidity < o->split_solidity)) {
+        (status == SP_SPLIT_SINGLE &&
+         (not_ellipse || (whole->d_area_px >= 20.0 && whole->solidity < o->split_solidity)))) {
         whole->cluster = 1;
         return SP_OK;
     }
     if (status != SP_SPLIT_DONE)
         return SP_OK;
+    if ((rc = reserve_scratch(m, 64, err)))
+        return rc;
+    for (int i = 0; i < n; i++)
+        if (!piece_on_edge(v, e, pc, n, i, o->edge_level, m->scratch)) {
+            whole->cluster = 1;
+            return SP_OK;
+        }
     for (int i = 0; i < n; i++) {
         const sp_ellipse *el = &pc[i].el;
         sp_bubble *b = &pieces[i];

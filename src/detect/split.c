@@ -163,6 +163,17 @@ static double union_iou(const sp_edges *e, const group *g, int ng)
     return uni ? (double)inter / (double)uni : 0;
 }
 
+/* Share of the pixel centres inside el (counted as pi·a·b) that lie in the silhouette. */
+static double inside_fraction(const sp_edges *e, const sp_ellipse *el)
+{
+    long in = 0;
+    for (int wy = 0; wy < e->wh; wy++)
+        for (int wx = 0; wx < e->ww; wx++)
+            in += e->ext[(size_t)wy * e->ww + wx] != 2 &&
+                  sp_ellipse_distance(el, e->wx0 + wx, e->wy0 + wy) <= 0;
+    return (double)in / (M_PI * el->a * el->b);
+}
+
 int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, int w, int label,
                      sp_split_piece *pieces, int *np, int *status, sp_error *err)
 {
@@ -189,7 +200,7 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, i
     const double sgn = area2 > 0 ? 1.0 : -1.0;
     int k = n / 16;
     k = k < 3 ? 3 : k > 40 ? 40 : k;
-    const double dmin = fmax(1.0, 0.25 * k * len / n);
+    const double dmin = fmax(0.7, 0.2 * k * len / n);
     for (int i = 0; i < n; i++) {
         const sp_contour_pt *a = &P[(i - k + n) % n], *b = &P[(i + k) % n], *p = &P[i];
         double ux = b->x - a->x, uy = b->y - a->y, qx = p->x - a->x, qy = p->y - a->y;
@@ -256,8 +267,9 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, i
      * stays inside the silhouette's window, and together they reproduce the silhouette. */
     for (int i = 0; i < ng; i++) {
         const sp_split_piece *p = &g[i].p;
-        if (!g[i].ok || p->rms_px > tolerance(&p->el) || p->el.b < 1.5 || p->el.b < 0.25 * p->el.a ||
-            p->span < 0.35)
+        /* Below 8 px across (the edge-fit size of measure.h) an arc no longer pins a piece's size. */
+        if (!g[i].ok || p->rms_px > tolerance(&p->el) || p->el.a * p->el.b < 16.0 ||
+            p->el.b < 0.25 * p->el.a || p->span < 0.35)
             return SP_OK;
         if (p->el.cx < e->wx0 || p->el.cy < e->wy0 || p->el.cx > e->wx0 + e->ww - 1 ||
             p->el.cy > e->wy0 + e->wh - 1)
@@ -275,6 +287,9 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, i
     }
     if (union_iou(e, g, ng) < 0.85)
         return SP_OK;
+    for (int i = 0; i < ng; i++) /* a piece must lie in the silhouette, not stick out of it */
+        if (inside_fraction(e, &g[i].p.el) < 0.9)
+            return SP_OK;
     /* Deterministic order: by centre, top to bottom then left to right. */
     for (int i = 1; i < ng; i++)
         for (int j = i; j > 0 && (g[j].p.el.cy < g[j - 1].p.el.cy ||
