@@ -3,6 +3,7 @@
  * away from the border. */
 #include "acoustic/crosscheck.h"
 #include "core/outfile.h"
+#include "io/audio.h"
 #include "track/assign.h"
 
 #include <jansson.h>
@@ -629,7 +630,25 @@ int sp_crosscheck(const char *dir, const char *audio, const sp_crosscheck_settin
         goto fail;
     }
 
-    /* Pings. */
+    /* Pings. The sample rate is checked here too, to say in Nyquist's terms what a rate too low
+     * means for the sizes sought. */
+    {
+        sp_audio *au = NULL;
+        if ((rc = sp_audio_open(&au, audio, s->listen.channel, err)))
+            goto fail;
+        double fs = sp_audio_get_info(au)->sample_rate;
+        sp_audio_close(au);
+        double f_top = sp_minnaert_freq(&s->listen.medium, s->listen.r_min_mm * 1e-3);
+        if (f_top > 0 && f_top > s->listen.nyquist_frac * fs) {
+            rc = sp_error_set(
+                err, SP_ERR_INPUT,
+                "%s: sample rate %.0f Hz too low (Nyquist limit %.0f Hz): a %g mm bubble rings at %.0f Hz, "
+                "more than %.0f%% of the rate; record at %.0f Hz or more, or raise --rmin",
+                audio, fs, 0.5 * fs, s->listen.r_min_mm, f_top, 100 * s->listen.nyquist_frac,
+                ceil(f_top / s->listen.nyquist_frac));
+            goto fail;
+        }
+    }
     rep.reused_pings = !s->relisten && pings_reusable(dir, audio, &s->listen);
     if (!rep.reused_pings && (rc = sp_listen(audio, dir, &s->listen, NULL, err)))
         goto fail;
