@@ -152,6 +152,8 @@ typedef struct sp_measure_settings {
     int bins_log;                /* log-spaced bins (default 0) */
     double bin_lo_mm, bin_hi_mm; /* histogram range (default 0, 0 = from the data) */
     const char *calib_dir;       /* where liquid presets live (calib/; NULL = built-in default) */
+    int report;                  /* 1: write report.html with plots and overlay thumbnails (default 1) */
+    int overlay_video;           /* 1: also write the annotated video overlay.mkv (default 0) */
 
     int threads;             /* worker threads, 0 = OpenMP default */
     sp_progress_fn progress; /* may be NULL; called from the calling thread */

@@ -64,6 +64,9 @@ static const char MEASURE_HELP[] =
     "  --bins N            size histogram bins (default 20)\n"
     "  --bins-log          log-spaced histogram bins\n"
     "  --bin-range LO,HI   histogram range in mm (default: the data's)\n"
+    "Report\n"
+    "  --no-report         do not write report.html and the overlay thumbnails\n"
+    "  --overlay-video     also write overlay.mkv, every frame annotated\n"
     "Running\n"
     "  --threads N         worker threads (default all cores)\n"
     "  --quiet             no progress or summary on stderr\n";
@@ -145,6 +148,10 @@ int cmd_measure(int argc, char **argv)
         } else if (!strcmp(a, "--calib")) {
             NEED_VALUE();
             s.calib_file = v;
+        } else if (!strcmp(a, "--no-report")) {
+            s.report = 0;
+        } else if (!strcmp(a, "--overlay-video")) {
+            s.overlay_video = 1;
         } else if (!strcmp(a, "--no-track")) {
             s.track = 0;
         } else if (!strcmp(a, "--max-gap")) {

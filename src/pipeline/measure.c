@@ -10,6 +10,7 @@
 #include "detect/detect.h"
 #include "pipeline/identity.h"
 #include "pipeline/tracking.h"
+#include "report/report.h"
 
 #include <math.h>
 #include <omp.h>
@@ -47,6 +48,7 @@ void sp_measure_settings_default(sp_measure_settings *s)
     s->temp_c = 20;
     s->boot = 1000;
     s->bins = 20;
+    s->report = 1;
 }
 
 static double now_s(void)
@@ -632,6 +634,15 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         (tr && ((rc = sp_outfile_commit(&ot, err)) || (rc = sp_outfile_commit(&oz, err)))) ||
         (rc = sp_outfile_commit(&os, err)))
         goto done;
+    if (s->report) {
+        /* The evidence: plots, tables and overlay thumbnails of what was measured. */
+        sp_report_opts ro;
+        sp_report_opts_default(&ro);
+        ro.input = input;
+        ro.video = s->overlay_video;
+        if ((rc = sp_report_build(outdir, &ro, err)))
+            goto done;
+    }
     if (rep) {
         rep->frames = tot.frames;
         rep->detections = tot.detections;
