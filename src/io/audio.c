@@ -8,6 +8,7 @@
 #include <libavformat/avformat.h>
 
 #include <stdio.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -298,6 +299,11 @@ int sp_audio_read(sp_audio *a, float *buf, int max, int *got, sp_error *err)
             } else {
                 v = sample_at(f, a->info.channel, a->pos + i);
             }
+            /* Float recordings can hold NaN or infinity (a corrupt file, or a double beyond float's
+             * range); one such sample would poison every running sum downstream. */
+            if (!isfinite(v))
+                return sp_error_set(err, SP_ERR_INPUT, "%s: sample %lld is not a finite number (%s)", a->path,
+                                    (long long)(a->delivered + i), isnan(v) ? "NaN" : "infinite");
             if (v != 0.0f)
                 a->any_nonzero = 1;
             buf[n + i] = v;
