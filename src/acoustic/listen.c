@@ -11,8 +11,16 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 
 #define BLOCK 8192 /* samples read per call */
+
+static double now_s(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return ts.tv_sec + ts.tv_nsec * 1e-9;
+}
 
 void sp_listen_settings_default(sp_listen_settings *s)
 {
@@ -24,6 +32,52 @@ void sp_listen_settings_default(sp_listen_settings *s)
     s->temp_c = 20;
     sp_bubble_medium_default(&s->medium);
     sp_ping_opts_default(&s->ping);
+    snprintf(s->liquid, sizeof s->liquid, "water");
+    snprintf(s->liquid_file, sizeof s->liquid_file, "built-in");
+    snprintf(s->gas, sizeof s->gas, "air");
+}
+
+/* Gas properties near 20 C and 1 atm (common handbook values, from memory): ratio of specific heats,
+ * thermal conductivity with a power-law temperature factor (T / 293.15 K)^k_exp, isobaric specific
+ * heat. Air gives D = k / (rho c_p) = 2.12e-5 m^2/s at 20 C, the value REFERENCES.md uses. */
+static const struct gas {
+    const char *name;
+    double molar_kg_mol, gamma, k_w_mk, k_exp, cp_j_kgk;
+} gases[] = {
+    {"air", SP_M_AIR, 1.400, 0.0257, 0.8, 1005.0},
+    {"co2", SP_M_CO2, 1.289, 0.0162, 1.4, 843.0},
+};
+
+int sp_listen_use_liquid(sp_listen_settings *s, const sp_liquid *l, const char *what, sp_error *err)
+{
+    const struct gas *g = NULL;
+    for (size_t i = 0; i < sizeof gases / sizeof gases[0]; i++)
+        if (fabs(l->gas_molar_kg_mol / gases[i].molar_kg_mol - 1) < 0.01)
+            g = &gases[i];
+    if (!g)
+        return sp_error_set(err, SP_ERR_INPUT,
+                            "%s: bubble gas of molar mass %g kg/mol has no acoustic properties here "
+                            "(air or CO2 only)",
+                            what, l->gas_molar_kg_mol);
+    /* The gas density at depth sets the thermal diffusivity: a deeper bubble is denser, so heat
+     * diffuses less far per cycle and the oscillation is closer to adiabatic (Prosperetti 1977). */
+    double rho_g = l->rho_gas_kg_m3 > 0 ? l->rho_gas_kg_m3 : sp_liquid_gas_density(l);
+    double tk = l->temp_c + 273.15;
+    if (!(rho_g > 0) || !(tk > 0))
+        return sp_error_set(err, SP_ERR_INPUT, "%s: no gas density for temperature %g C", what, l->temp_c);
+    sp_bubble_medium *m = &s->medium;
+    m->rho_kg_m3 = l->rho_kg_m3;
+    m->sigma_n_m = l->sigma_n_m;
+    m->p_atm_pa = l->p_atm_pa;
+    m->p_vapour_pa = l->vapour_pa;
+    m->depth_m = l->depth_m;
+    m->g_m_s2 = l->g_m_s2;
+    m->gamma = g->gamma;
+    m->d_gas_m2_s = g->k_w_mk * pow(tk / 293.15, g->k_exp) / (rho_g * g->cp_j_kgk);
+    s->temp_c = l->temp_c;
+    snprintf(s->liquid, sizeof s->liquid, "%s", l->name);
+    snprintf(s->gas, sizeof s->gas, "%s", g->name);
+    return SP_OK;
 }
 
 typedef struct job {
@@ -110,6 +164,9 @@ static void write_settings(sp_jsonw *jw, const sp_listen_settings *s)
     sp_jsonw_knum(jw, "r_max_mm", s->r_max_mm);
     sp_jsonw_knum(jw, "nyquist_frac", s->nyquist_frac);
     sp_jsonw_knum(jw, "temp_c", s->temp_c);
+    sp_jsonw_kstr(jw, "liquid", s->liquid);
+    sp_jsonw_kstr(jw, "liquid_file", s->liquid_file);
+    sp_jsonw_kstr(jw, "gas", s->gas);
     sp_jsonw_knum(jw, "depth_m", m->depth_m);
     sp_jsonw_kstr(jw, "model", m->model >= 0 && m->model <= 2 ? models[m->model] : "unknown");
     sp_jsonw_knum(jw, "rho_kg_m3", m->rho_kg_m3);
@@ -186,6 +243,8 @@ int sp_listen(const char *audio, const char *outdir, const sp_listen_settings *s
         rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", audio);
         goto fail;
     }
+    double t0 = now_s();
+    int64_t done = 0;
     for (;;) {
         int got = 0;
         if ((rc = sp_audio_read(a, buf, BLOCK, &got, err)))
@@ -194,6 +253,13 @@ int sp_listen(const char *audio, const char *outdir, const sp_listen_settings *s
             break;
         if ((rc = sp_pings_feed(det, buf, got, err)))
             goto fail;
+        done += got;
+        if (s->progress) {
+            sp_progress p = {"listen", (int64_t)(1e3 * done / fs),
+                             in->samples_total > 0 ? (int64_t)(1e3 * in->samples_total / fs) : -1,
+                             now_s() - t0};
+            s->progress(s->progress_ud, &p);
+        }
     }
     if ((rc = sp_pings_finish(det, err)))
         goto fail;

@@ -4,6 +4,7 @@
 
 #include "acoustic/minnaert.h"
 #include "acoustic/pings.h"
+#include "physics/liquid.h"
 #include "spume.h"
 
 typedef struct sp_listen_settings {
@@ -18,9 +19,22 @@ typedef struct sp_listen_settings {
     sp_bubble_medium medium; /* liquid, gas, depth, model (sp_bubble_medium_default) */
     sp_ping_opts ping;       /* detector (sp_ping_opts_default; band set from the radii) */
     int write_rejected;      /* 1: pings.csv also lists rejected candidates (status column) (default 0) */
+    char liquid[64];         /* name of the liquid the medium came from, recorded (default "water") */
+    char liquid_file[1024];  /* preset file it was read from, recorded (default "built-in") */
+    char gas[8];             /* gas in the bubbles, recorded: "air" (default) or "co2" */
+    sp_progress_fn progress; /* may be NULL: phase "listen", done/total in milliseconds of audio
+                                (total -1 if the container does not say), from the calling thread */
+    void *progress_ud;
 } sp_listen_settings;
 
 void sp_listen_settings_default(sp_listen_settings *s);
+
+/* Fill the medium of s from a liquid (sp_liquid_preset / sp_liquid_water): density, surface tension,
+ * vapour pressure, pressure above the surface, gravity and depth, and the gas in the bubbles (air or
+ * CO2, from the molar mass) with its ratio of specific heats and its thermal diffusivity
+ * D = k / (rho_gas c_p) at the liquid's temperature and the pressure at depth. Records temp_c, liquid
+ * and gas. A gas other than air or CO2: SP_ERR_INPUT naming `what`. The model is left as it was. */
+int sp_listen_use_liquid(sp_listen_settings *s, const sp_liquid *l, const char *what, sp_error *err);
 
 typedef struct sp_listen_report {
     int sample_rate, channels;
