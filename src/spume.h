@@ -134,8 +134,13 @@ typedef struct sp_measure_settings {
     int fill;           /* 1: fill the refraction spot (default 1) */
     double min_diam_px; /* size gates on the area-equivalent diameter (defaults 3, 0 = none) */
     double max_diam_px;
-    double fit_min_px; /* sub-pixel edge fit from this diameter up (default 8) */
-    double edge_level; /* edge where transmission crosses this fraction of the local step (0.5) */
+    double fit_min_px;    /* sub-pixel edge fit from this diameter up (default 8) */
+    double edge_level;    /* edge where transmission crosses this fraction of the local step (0.5) */
+    double min_sharpness; /* in-focus band: outline sharpness at least this, 1/px (default 0.43) */
+    int split;            /* 1: split clusters of overlapping bubbles (default 1) */
+    int still_guard;      /* 1: keep still bubbles out of an estimated background (default 1) */
+    double still_level;   /* the guard's darkness level (default 0.5) */
+    int keep_defocused;   /* 1: out-of-focus tracks count in the size statistics (default 0) */
 
     /* Tracking, the liquid, statistics. */
     int track;                     /* 1: link bubbles into tracks (default 1) */

@@ -52,6 +52,11 @@ static const char MEASURE_HELP[] =
     "  --max-diam-px D     drop bubbles larger than D px (default no limit)\n"
     "  --fit-min-px D      sub-pixel edge fit from D px up (default 8)\n"
     "  --edge-level F      edge where transmission crosses F of the local step (default 0.5)\n"
+    "  --min-sharpness S   in-focus band: outline sharpness at least S per px (default 0.43)\n"
+    "  --keep-defocused    count out-of-focus tracks in the size statistics\n"
+    "  --no-split          do not split clusters of overlapping bubbles\n"
+    "  --no-still-guard    let still dark objects become part of the estimated background\n"
+    "  --still-level F     the still guard's darkness level (default 0.5)\n"
     "Tracks, liquid and statistics\n"
     "  --no-track          do not link bubbles into tracks (no tracks.csv, sites.csv)\n"
     "  --max-gap N         frames in a row a track may miss and still continue (default 3)\n"
@@ -148,6 +153,26 @@ int cmd_measure(int argc, char **argv)
         } else if (!strcmp(a, "--calib")) {
             NEED_VALUE();
             s.calib_file = v;
+        } else if (!strcmp(a, "--min-sharpness")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d >= 0 && d < 10))
+                return usage_error(cmd, "--min-sharpness wants a value per px in 0..10, not '%s'", v);
+            s.min_sharpness = d;
+        } else if (!strcmp(a, "--keep-defocused")) {
+            s.keep_defocused = 1;
+        } else if (!strcmp(a, "--no-split")) {
+            s.split = 0;
+        } else if (!strcmp(a, "--no-still-guard")) {
+            s.still_guard = 0;
+        } else if (!strcmp(a, "--still-level")) {
+            NEED_VALUE();
+            if (parse_double(cmd, a, v, &d))
+                return 2;
+            if (!(d > 0 && d < 1))
+                return usage_error(cmd, "--still-level must lie between 0 and 1, not '%s'", v);
+            s.still_level = d;
         } else if (!strcmp(a, "--no-report")) {
             s.report = 0;
         } else if (!strcmp(a, "--overlay-video")) {

@@ -42,6 +42,10 @@ void sp_measure_settings_default(sp_measure_settings *s)
     s->max_diam_px = d.measure.max_diam_px;
     s->fit_min_px = d.measure.fit_min_px;
     s->edge_level = d.measure.edge_level;
+    s->min_sharpness = d.measure.min_sharpness;
+    s->split = d.measure.split;
+    s->still_guard = 1;
+    s->still_level = 0.5;
     s->track = 1;
     s->max_gap = 3;
     s->liquid = "water";
@@ -64,6 +68,7 @@ typedef struct bgset {
     double *centre; /* selection position (0-based delivered frame count) each estimate stands for */
     char mode[32];
     int samples; /* frames sampled per estimate */
+    int still_filled; /* dark still objects refilled from the surrounding light (all estimates) */
 } bgset;
 
 static void bgset_free(bgset *b)
@@ -204,6 +209,10 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         }
         if ((rc = sp_bg_builder_finish(bld[k], s->bg_percentile, b->img[k], s->threads, err)))
             goto done;
+        int filled = 0;
+        if (s->still_guard && (rc = sp_bg_guard_still(b->img[k], w, h, s->still_level, 0.02, &filled, err)))
+            goto done;
+        b->still_filled += filled;
         int64_t n = sel > 0 ? sel : seen;
         b->centre[k] = ((double)k + 0.5) * (double)n / nseg - 0.5;
     }
@@ -257,7 +266,7 @@ typedef struct totals {
 } totals;
 
 static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings *s,
-                              const sp_source_info *info, totals *tot)
+                              const sp_source_info *info, double rel_u_scale, totals *tot)
 {
     const double sc = s->mm_per_px > 0 ? s->mm_per_px : 1.0;
     const int ox = s->source.roi.w > 0 ? s->source.roi.x : 0;
@@ -268,12 +277,15 @@ static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings
         fprintf(
             f,
             "%lld,%.6f,%lld,%.3f,%.3f,%.6g,%.6g,%.0f,%.6g,%.6g,%.2f,%.6g,%.6g,%.4f,%d,%d,%.3f,%.3f,%.4f,%."
-            "3f,%d\n",
+            "3f,%d,%d,%.4f,%d,%.4f,%.4g\n",
             (long long)sl->index, sl->t, (long long)sl->ids[i], x, y, x * sc,
             (info->full_height - 1 - y) * sc, b->area_px, b->major_px * sc, b->minor_px * sc, b->tilt_deg,
             b->d_area_px * sc, b->d_vol_px * sc, b->aspect, b->edge, b->split, b->major_px, b->minor_px,
-            b->solidity, b->contrast, b->fit);
-        if (!b->edge) {
+            b->solidity, b->contrast, b->fit, b->cluster, b->sharpness, b->in_focus, b->u_d_px,
+            /* The scale's relative uncertainty is common to every bubble: added in quadrature. */
+            sqrt(b->u_d_px * sc * b->u_d_px * sc +
+                 (b->d_vol_px * sc * rel_u_scale) * (b->d_vol_px * sc * rel_u_scale)));
+        if (!b->edge && !b->cluster) {
             double d = b->d_vol_px * sc;
             tot->used++;
             tot->s1 += d;
@@ -287,7 +299,7 @@ static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings
 static const char BUBBLE_HEADER[] =
     "frame,t_s,track,x_px,y_px,x_mm,y_mm,area_px,major_mm,minor_mm,tilt_deg,"
     "d_area_mm,d_vol_mm,aspect,edge,split,major_px,minor_px,solidity,contrast,"
-    "fit\n";
+    "fit,cluster,sharpness_px_inv,in_focus,u_d_px,u_d_mm\n";
 
 static int write_summary(FILE *f, const char *input, const sp_measure_settings *s, const sp_source_info *info,
                          const bgset *bg, const totals *tot, double fps, const sp_trackrun *tr,
@@ -385,6 +397,12 @@ static int write_summary(FILE *f, const char *input, const sp_measure_settings *
     sp_jsonw_kint(&j, "background_frames", bg->samples);
     sp_jsonw_knum(&j, "background_percentile", s->bg_percentile);
     sp_jsonw_kint(&j, "background_segments", bg->n);
+    sp_jsonw_kbool(&j, "still_guard", s->still_guard);
+    sp_jsonw_knum(&j, "still_level", s->still_level);
+    sp_jsonw_kint(&j, "still_objects_refilled", bg->still_filled);
+    sp_jsonw_knum(&j, "min_sharpness_px_inv", s->min_sharpness);
+    sp_jsonw_kbool(&j, "split", s->split);
+    sp_jsonw_kbool(&j, "keep_defocused", s->keep_defocused);
     sp_jsonw_kstr(&j, "threshold_mode", s->otsu ? "otsu" : "fixed");
     sp_jsonw_knum(&j, "threshold", s->threshold);
     sp_jsonw_kbool(&j, "flicker_compensation", s->flicker);
@@ -508,6 +526,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     dopt.measure.max_diam_px = s->max_diam_px;
     dopt.measure.fit_min_px = s->fit_min_px;
     dopt.measure.edge_level = s->edge_level;
+    dopt.measure.min_sharpness = s->min_sharpness;
+    dopt.measure.split = s->split;
 
     slots = calloc((size_t)batch, sizeof *slots);
     det = calloc((size_t)nthreads, sizeof *det);
@@ -535,7 +555,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                                s->source.fps > 0 ? s->source.fps : info->fps,
                                s->max_gap,
                                s->source.start,
-                               &liq};
+                               &liq,
+                               s->keep_defocused};
         if ((rc = sp_trackrun_new(&tr, &to, err)))
             goto done;
     }
@@ -598,7 +619,9 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
             tot.detections += sl->n;
             double frac = sl->gas_px / (double)npx;
             tot.holdup_sum += frac;
-            write_bubble_rows(ob.f, sl, s, info, &tot);
+            write_bubble_rows(ob.f, sl, s, info,
+                              have_cal && cal.mm_per_px > 0 ? cal.mm_per_px_uncertainty / cal.mm_per_px : 0,
+                              &tot);
             fprintf(of.f, "%lld,%.6f,%d,%.5f,%.4f,%.6f,%.6g\n", (long long)sl->index, sl->t, sl->n, sl->gain,
                     sl->level, frac, vol);
         }

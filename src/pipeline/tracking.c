@@ -24,6 +24,7 @@ typedef struct trackrec {
     double d_last_mm; /* diameter at the last clean detection (gas it carries out of view) */
     sp_rise_predictions pred;
     int site;
+    double in_focus_frac; /* share of its detections in focus */
 } trackrec;
 
 struct sp_trackrun {
@@ -37,6 +38,9 @@ struct sp_trackrun {
     size_t n, cap;
     sp_sites sites;
     int have_sites;
+    /* Per track id: detections and how many were in focus, until the track ends. */
+    int32_t *nfocus, *ndet;
+    size_t idcap;
 };
 
 void sp_trackrun_free(sp_trackrun *tr)
@@ -46,6 +50,8 @@ void sp_trackrun_free(sp_trackrun *tr)
     sp_linker_free(tr->lk);
     free(tr->dets);
     free(tr->rec);
+    free(tr->nfocus);
+    free(tr->ndet);
     if (tr->have_sites)
         sp_sites_free(&tr->sites);
     free(tr);
@@ -111,6 +117,9 @@ static int drain(sp_trackrun *tr, sp_error *err)
         r->k.x_birth_mm += tr->o.roi_x * s;
         r->k.y_birth_mm -= tr->o.roi_y * s;
         r->first_edge = t->pts[0].edge;
+        r->in_focus_frac = (size_t)t->id < tr->idcap && tr->ndet[t->id] > 0
+                               ? (double)tr->nfocus[t->id] / tr->ndet[t->id]
+                               : 1.0;
         /* A birth: first seen away from the border, and not already in view when the run began. */
         r->born_inside = !t->pts[0].edge && t->pts[0].frame > tr->o.first_frame;
         r->d_last_mm = NAN;
@@ -140,12 +149,39 @@ int sp_trackrun_frame(sp_trackrun *tr, int64_t frame, double t_s, const sp_bubbl
         tr->dets = d;
         tr->dets_cap = n;
     }
+    /* An unsplit cluster is no bubble's true outline: link it like one cut by the border. */
     for (int i = 0; i < n; i++)
-        tr->dets[i] =
-            (sp_link_det){b[i].x, b[i].y, b[i].d_vol_px, b[i].aspect, b[i].tilt_deg, b[i].area_px, b[i].edge};
+        tr->dets[i] = (sp_link_det){b[i].x,
+                                    b[i].y,
+                                    b[i].d_vol_px,
+                                    b[i].aspect,
+                                    b[i].tilt_deg,
+                                    b[i].area_px,
+                                    b[i].edge || b[i].cluster};
     int rc = sp_linker_push(tr->lk, frame, t_s, tr->dets, n, ids, err);
     if (rc)
         return rc;
+    for (int i = 0; i < n; i++) {
+        size_t id = (size_t)ids[i];
+        if (id >= tr->idcap) {
+            size_t nc = tr->idcap ? tr->idcap : 1024;
+            while (nc <= id)
+                nc *= 2;
+            int32_t *a = realloc(tr->nfocus, nc * sizeof *a);
+            if (!a)
+                return sp_error_set(err, SP_ERR_INTERNAL, "tracking: out of memory");
+            tr->nfocus = a;
+            int32_t *c = realloc(tr->ndet, nc * sizeof *c);
+            if (!c)
+                return sp_error_set(err, SP_ERR_INTERNAL, "tracking: out of memory");
+            tr->ndet = c;
+            memset(tr->nfocus + tr->idcap, 0, (nc - tr->idcap) * sizeof *a);
+            memset(tr->ndet + tr->idcap, 0, (nc - tr->idcap) * sizeof *c);
+            tr->idcap = nc;
+        }
+        tr->ndet[id]++;
+        tr->nfocus[id] += b[i].in_focus != 0;
+    }
     return drain(tr, err);
 }
 
@@ -206,7 +242,8 @@ void sp_trackrun_write_tracks(const sp_trackrun *tr, FILE *f)
         "track,frame_first,frame_last,n,d_vol_mm,growth_mm_s,vx_mm_s,vy_mm_s,speed_mm_s,site,"
         "t_first_s,t_last_s,x_first_mm,y_first_mm,d_first_mm,n_clean,vx_se_mm_s,vy_se_mm_s,ax_mm_s2,ay_mm_s2,"
         "growth_se_mm_s,osc_amp_mm,osc_hz,aspect_mean,tilt_mean_deg,re,eo,we,u_mendelson_mm_s,"
-        "u_tomiyama_pure_mm_s,u_tomiyama_slight_mm_s,u_tomiyama_full_mm_s,aspect_wellek,aspect_aoyama\n",
+        "u_tomiyama_pure_mm_s,u_tomiyama_slight_mm_s,u_tomiyama_full_mm_s,aspect_wellek,aspect_aoyama,"
+        "in_focus_frac\n",
         f);
     for (size_t i = 0; i < tr->n; i++) {
         const trackrec *r = &tr->rec[i];
@@ -244,6 +281,7 @@ void sp_trackrun_write_tracks(const sp_trackrun *tr, FILE *f)
         num(f, "%.6g", p->tomiyama_full_m_s * 1e3);
         num(f, "%.4f", p->aspect_wellek);
         num(f, "%.4f", p->aspect_aoyama);
+        num(f, "%.3f", r->in_focus_frac);
         fputc('\n', f);
     }
 }
@@ -288,9 +326,16 @@ int sp_trackrun_write_summary(const sp_trackrun *tr, sp_jsonw *j, const sp_stats
     if (!d)
         return sp_error_set(err, SP_ERR_INTERNAL, "statistics: out of memory");
     size_t nd = 0;
-    for (size_t i = 0; i < tr->n; i++)
-        if (isfinite(tr->rec[i].k.d_vol_mm) && tr->rec[i].k.d_vol_mm > 0)
-            d[nd++] = tr->rec[i].k.d_vol_mm;
+    size_t defocused = 0;
+    for (size_t i = 0; i < tr->n; i++) {
+        if (!(isfinite(tr->rec[i].k.d_vol_mm) && tr->rec[i].k.d_vol_mm > 0))
+            continue;
+        if (tr->rec[i].in_focus_frac < 0.5 && !tr->o.keep_defocused) {
+            defocused++;
+            continue;
+        }
+        d[nd++] = tr->rec[i].k.d_vol_mm;
+    }
     sp_size_summary sum;
     int have = nd > 0 && sp_size_summarise(d, nd, &sum, NULL) == SP_OK;
     sp_jsonw_knum(j, "d10_mm", have ? sum.d10 : NAN);
@@ -299,8 +344,11 @@ int sp_trackrun_write_summary(const sp_trackrun *tr, sp_jsonw *j, const sp_stats
 
     sp_jsonw_key(j, "statistics");
     sp_jsonw_obj(j);
-    sp_jsonw_kstr(j, "basis", "one diameter per track: median d_vol over its detections clear of the border");
+    sp_jsonw_kstr(j, "basis",
+                  "one diameter per track: median d_vol over its detections clear of the border and "
+                  "of unsplit clusters; tracks mostly out of focus left out unless kept");
     sp_jsonw_kint(j, "tracks_used", (int64_t)nd);
+    sp_jsonw_kint(j, "tracks_out_of_focus_left_out", (int64_t)defocused);
     if (have) {
         sp_jsonw_knum(j, "d30_mm", sum.d30);
         sp_jsonw_knum(j, "d50_mm", sum.d50);

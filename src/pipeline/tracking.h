@@ -21,6 +21,7 @@ typedef struct sp_trackrun_opts {
     int max_gap;         /* frames a track may miss */
     int64_t first_frame; /* index of the first analysed frame: tracks already in view there are not births */
     const sp_liquid *liquid;
+    int keep_defocused; /* 1: tracks mostly out of focus still count in the size statistics */
 } sp_trackrun_opts;
 
 int sp_trackrun_new(sp_trackrun **out, const sp_trackrun_opts *o, sp_error *err);

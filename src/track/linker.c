@@ -16,16 +16,22 @@
 #include <stdlib.h>
 #include <string.h>
 
+#ifndef M_PI
+#define M_PI 3.14159265358979323846
+#endif
+
 #define MAX_DETS 10000000 /* detections accepted in one frame */
 #define MAX_COORD 1e7     /* |x|, |y| bound: far beyond any frame (SP_MAX_DIM), keeps grid maths sane */
 
 typedef struct active {
     int64_t id;
     sp_kalman_cv k;
-    double d, aspect; /* last measured */
+    double d, aspect; /* last measured clear of the border (the first measured until then) */
+    int edge;         /* the last detection touched the border */
     int64_t last_frame;
     double last_t;
     int missed_run, missed_total;
+    int hidden; /* the current run of misses is spent inside a merged or cut detection */
     sp_track_point *pts;
     int n, cap;
 } active;
@@ -60,6 +66,7 @@ void sp_linker_opts_default(sp_linker_opts *o)
     o->birth_speed_px = 10;
     o->meas_sigma_px = 0.5;
     o->accel_sigma_px = 0.5;
+    o->max_gap_hidden = 30;
     o->w_size = 10;
     o->w_aspect = 5;
     o->cost_max = 30;
@@ -229,11 +236,16 @@ static int append_point(active *a, int64_t frame, double t_s, const sp_link_det 
     p->tilt_deg = d->tilt_deg;
     p->area_px = d->area_px;
     p->edge = d->edge;
-    a->d = d->d_px;
-    a->aspect = d->aspect;
+    /* A bubble cut by the border shows only part of itself: keep the size and shape it had. */
+    if (!d->edge || a->n == 1) {
+        a->d = d->d_px;
+        a->aspect = d->aspect;
+    }
+    a->edge = d->edge;
     a->last_frame = frame;
     a->last_t = t_s;
     a->missed_run = 0;
+    a->hidden = 0;
     return 0;
 }
 
@@ -386,10 +398,18 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                             double e2 = dx * dx + dy * dy;
                             if (e2 > g * g)
                                 continue;
-                            double dm = fmax(a->d, d[j].d_px);
-                            double rs = dm > 0 ? (d[j].d_px - a->d) / dm : 0;
-                            double da = d[j].aspect - a->aspect;
-                            double cst = e2 / s + o->w_size * rs * rs + o->w_aspect * da * da;
+                            double cst;
+                            if (d[j].edge || a->edge) {
+                                /* Entering or leaving the view: the visible part's size and shape
+                                 * say little, and its centroid wanders by up to a radius. */
+                                double slack = 0.25 * fmax(a->d, d[j].d_px);
+                                cst = e2 / (s + slack * slack);
+                            } else {
+                                double dm = fmax(a->d, d[j].d_px);
+                                double rs = dm > 0 ? (d[j].d_px - a->d) / dm : 0;
+                                double da = d[j].aspect - a->aspect;
+                                cst = e2 / s + o->w_size * rs * rs + o->w_aspect * da * da;
+                            }
                             if (!(cst < o->cost_max))
                                 continue;
                             if (grow_pairs(lk, np + 2))
@@ -433,6 +453,18 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
         } else {
             a->missed_run++;
             a->missed_total++;
+            /* Hidden, not gone: the prediction lies inside a detection that holds more than one
+             * bubble (flagged, or much larger than this one) or is cut by the border (two bubbles merged in
+             * projection, one passing behind another). Such a track may coast longer and take up its bubble
+             * when they part. */
+            a->hidden = 0;
+            for (int jj = 0; jj < n && !a->hidden; jj++) {
+                if (!d[jj].edge && !(d[jj].d_px > 1.3 * a->d))
+                    continue;
+                double rr = sqrt(d[jj].area_px / M_PI);
+                double dx = a->k.x - d[jj].x, dy = a->k.y - d[jj].y;
+                a->hidden = dx * dx + dy * dy <= rr * rr;
+            }
         }
     }
 
@@ -440,7 +472,8 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
     int w = 0;
     for (int i = 0; i < R; i++) {
         active *a = &lk->act[i];
-        if (a->missed_run > o->max_gap || a->n >= o->max_points) {
+        int gap = a->hidden ? o->max_gap_hidden : o->max_gap;
+        if (a->missed_run > gap || a->n >= o->max_points) {
             if (end_track(lk, a))
                 goto oom;
             continue;

@@ -29,6 +29,7 @@ void sp_sites_opts_default(sp_sites_opts *o)
     o->y_weight = 0.5;
     o->d_cap = 4.0;
     o->min_births = 3;
+    o->max_spread = 0.5;
 }
 
 void sp_sites_free(sp_sites *s)
@@ -167,7 +168,7 @@ static int cmp_site(const void *a, const void *b)
     return 0;
 }
 
-/* Statistics of one site from its members c[m[0..k)].i. `buf` holds at least k doubles. */
+/* Statistics of one site from its members c[m[0..k)].i. `buf` holds at least 2k doubles. */
 static void site_stats(const cand *c, const member *m, size_t k, double *buf, sp_site *s)
 {
     memset(s, 0, sizeof *s);
@@ -196,7 +197,24 @@ static void site_stats(const cand *c, const member *m, size_t k, double *buf, sp
     s->t_first_s = buf[0];
     s->t_last_s = buf[k - 1];
     double span = s->t_last_s - s->t_first_s;
-    s->rate_hz = k >= 2 && span > 0 ? (double)(k - 1) / span : 0.0;
+    /* Emission periods in the span: one per interval, except that an interval longer than 1.5
+     * median intervals counts as round(interval / median) periods — births the detector missed
+     * (a bubble too small or hidden at detachment), which would otherwise lower the rate. */
+    double periods = (double)(k - 1);
+    if (k >= 4) {
+        double *iv = buf + k; /* buf holds 2k doubles */
+        for (size_t j = 1; j < k; j++)
+            iv[j - 1] = buf[j] - buf[j - 1];
+        double med = median_finite(iv, k - 1);
+        if (med > 0) {
+            periods = 0;
+            for (size_t j = 1; j < k; j++) {
+                double r = (buf[j] - buf[j - 1]) / med;
+                periods += r > 1.5 ? floor(r + 0.5) : 1.0;
+            }
+        }
+    }
+    s->rate_hz = k >= 2 && span > 0 ? periods / span : 0.0;
     s->interval_cv = NAN;
     if (k >= 3 && span > 0) {
         double mean = span / (double)(k - 1), ss = 0;
@@ -266,7 +284,7 @@ int sp_sites_find(const sp_birth *births, size_t n, const sp_sites_opts *opts, s
     qsort(c, m, sizeof *c, cmp_cand);
 
     /* Radius per birth: eps_diam first diameters (capped against outliers), floored at eps_min. */
-    buf = malloc(m * sizeof *buf);
+    buf = malloc(2 * m * sizeof *buf);
     grid = malloc(m * sizeof *grid);
     mem = malloc(m * sizeof *mem);
     rootid = calloc(m, sizeof *rootid);
@@ -393,6 +411,16 @@ int sp_sites_find(const sp_birth *births, size_t n, const sp_sites_opts *opts, s
         }
         a = b;
     }
+    /* A site is a fixed point: births scattered over more than half a detachment diameter around
+     * it are fragments of tracks broken in mid-field, not a nucleation site. */
+    size_t kept = 0;
+    for (size_t k = 0; k < ns; k++) {
+        const sp_site *st = &out->site[k];
+        if (o.max_spread > 0 && isfinite(st->d_detach_mm) && st->spread_mm > o.max_spread * st->d_detach_mm)
+            continue;
+        out->site[kept++] = *st;
+    }
+    ns = kept;
     qsort(out->site, ns, sizeof *out->site, cmp_site);
     /* Number the sites in sorted order; rootid maps a cluster root to its site id. */
     for (size_t k = 0; k < ns; k++) {

@@ -45,6 +45,9 @@ typedef struct sp_sites_opts {
                           sites (4.0) */
     int min_births;    /* DBSCAN MinPts, the point itself included: births within the radius that
                           make a core point; also the least births a site may have (3) */
+    double max_spread;  /* a cluster whose births scatter (median distance from its centre) more than
+                           this × its detachment diameter is not a site but track fragments; 0 = no
+                           limit (default 0.5) */
 } sp_sites_opts;
 
 void sp_sites_opts_default(sp_sites_opts *o);

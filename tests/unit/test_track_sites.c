@@ -273,6 +273,7 @@ static void test_radius(void)
     sp_sites_opts o;
     sp_sites_opts_default(&o);
     o.eps_mm = 0.5;
+    o.max_spread = 0; /* these merges are the point here, not a fixed site */
     rc = sp_sites_find(b, 20, &o, &r, &err);
     CHECK(rc == SP_OK && r.nsites == 1 && r.site[0].n == 20, "fixed 0.5 mm radius merges them");
     sp_sites_free(&r);
@@ -281,11 +282,15 @@ static void test_radius(void)
         b[i].x0_mm = 1.0;
         b[i].y0_mm = 1.3;
     }
-    rc = sp_sites_find(b, 20, NULL, &r, &err);
+    sp_sites_opts merge;
+    sp_sites_opts_default(&merge);
+    merge.max_spread = 0;
+    rc = sp_sites_find(b, 20, &merge, &r, &err);
     CHECK(rc == SP_OK && r.nsites == 1, "0.3 mm apart vertically, weight 0.5: %zu sites", r.nsites);
     sp_sites_free(&r);
     o.eps_mm = 0;
     o.y_weight = 1.0;
+    o.max_spread = 0.5;
     rc = sp_sites_find(b, 20, &o, &r, &err);
     CHECK(rc == SP_OK && r.nsites == 2, "vertical weight 1: %zu sites", r.nsites);
     sp_sites_free(&r);
