@@ -136,7 +136,7 @@ typedef struct sp_measure_settings {
     double max_diam_px;
     double fit_min_px;    /* sub-pixel edge fit from this diameter up (default 8) */
     double edge_level;    /* edge where transmission crosses this fraction of the local step (0.5) */
-    double min_sharpness; /* in-focus band: outline sharpness at least this, 1/px (default 0.43) */
+    double min_sharpness; /* in-focus band: outline sharpness at least this, 1/px (default 0.47) */
     int split;            /* 1: split clusters of overlapping bubbles (default 1) */
     int still_guard;      /* 1: keep still bubbles out of an estimated background (default 1) */
     double still_level;   /* the guard's darkness level (default 0.5) */

@@ -52,7 +52,7 @@ static const char MEASURE_HELP[] =
     "  --max-diam-px D     drop bubbles larger than D px (default no limit)\n"
     "  --fit-min-px D      sub-pixel edge fit from D px up (default 8)\n"
     "  --edge-level F      edge where transmission crosses F of the local step (default 0.5)\n"
-    "  --min-sharpness S   in-focus band: outline sharpness at least S per px (default 0.43)\n"
+    "  --min-sharpness S   in-focus band: outline sharpness at least S per px (default 0.47)\n"
     "  --keep-defocused    count out-of-focus tracks in the size statistics\n"
     "  --no-split          do not split clusters of overlapping bubbles\n"
     "  --no-still-guard    let still dark objects become part of the estimated background\n"

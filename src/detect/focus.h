@@ -14,10 +14,10 @@
 
 /* Default minimum sharpness, 1/px: the value this estimator gives for a plain step blurred by a
  * defocus disc of 1.5 px radius (tests/unit/test_detect_accuracy.c measures it), i.e. a circle of
- * confusion of three pixels. A plain step under a 1 px disc gives about 0.52; a thin grey shoulder at
+ * confusion of three pixels. A plain step under a 1 px disc gives about 0.56; a thin grey shoulder at
  * the outline (total reflection) widens the measured step, so the default sits one notch lower.
  * Set it for a given optics from a traverse (docs/methods-accuracy.md). */
-#define SP_FOCUS_MIN_SHARPNESS_DEFAULT 0.43
+#define SP_FOCUS_MIN_SHARPNESS_DEFAULT 0.47
 
 /* Median sharpness of n points with 25..75 % widths wid[i] along directions dir[2i], dir[2i+1],
  * against the outline ellipse el (its normal at each point). Points whose pair direction is more

@@ -9,13 +9,13 @@
 enum { SP_BORDER_LEFT = 1, SP_BORDER_TOP = 2, SP_BORDER_RIGHT = 4, SP_BORDER_BOTTOM = 8 };
 
 typedef struct sp_component {
-    int64_t area;                 /* pixel count (m00) */
-    int x0, y0, x1, y1;           /* bounding box, inclusive */
-    int64_t m10, m01;             /* raw moments: sum x, sum y (exact integers) */
-    int64_t m20, m11, m02;        /* raw moments: sum x², sum xy, sum y² */
-    double cx, cy;                /* centroid, pixel centres at integer coordinates */
-    double mu20, mu11, mu02;      /* central moments (sums, not divided by area) */
-    int border;                   /* SP_BORDER_* bits of the image sides the component touches */
+    int64_t area;            /* pixel count (m00) */
+    int x0, y0, x1, y1;      /* bounding box, inclusive */
+    int64_t m10, m01;        /* raw moments: sum x, sum y (exact integers) */
+    int64_t m20, m11, m02;   /* raw moments: sum x², sum xy, sum y² */
+    double cx, cy;           /* centroid, pixel centres at integer coordinates */
+    double mu20, mu11, mu02; /* central moments (sums, not divided by area) */
+    int border;              /* SP_BORDER_* bits of the image sides the component touches */
 } sp_component;
 
 /* Reusable workspace (union-find tables, per-strip buffers). Not shared between threads. */

@@ -436,10 +436,12 @@ int sp_liquid_preset_in(const char *calib_dir, const char *name_or_path, double 
         dirs[0] = calib_dir;
     } else {
         const char *env = getenv("SPUME_CALIB_DIR");
+        /* An explicit $SPUME_CALIB_DIR is the only place looked in; the build's own calib/ otherwise. */
         if (env && *env && snprintf(envdir, sizeof envdir, "%s/liquids", env) < (int)sizeof envdir)
             dirs[0] = envdir;
 #ifdef SPUME_CALIB_DIR_DEFAULT
-        dirs[1] = SPUME_CALIB_DIR_DEFAULT "/liquids";
+        else
+            dirs[1] = SPUME_CALIB_DIR_DEFAULT "/liquids";
 #endif
     }
     for (int i = 0; i < 2; i++) {
@@ -454,7 +456,8 @@ int sp_liquid_preset_in(const char *calib_dir, const char *name_or_path, double 
         return sp_liquid_water(isfinite(temp_c) ? temp_c : 20.0, out, err);
     for (int i = 0; i < 2; i++)
         if (dirs[i])
-            return sp_error_set(err, SP_ERR_INPUT, "%s/%s.json: no such liquid preset", dirs[i], name_or_path);
+            return sp_error_set(err, SP_ERR_INPUT, "%s/%s.json: no such liquid preset", dirs[i],
+                                name_or_path);
     return sp_error_set(
         err, SP_ERR_INPUT,
         "liquid preset '%s': no preset directory (set SPUME_CALIB_DIR to the folder holding liquids/)",

@@ -198,9 +198,9 @@ int sp_trackrun_finish(sp_trackrun *tr, sp_error *err)
         return sp_error_set(err, rc, "tracking: out of memory ending the tracks");
     if ((rc = drain(tr, err)))
         return rc;
-    qsort(tr->rec, tr->n, sizeof *tr->rec, by_id);
     if (tr->n == 0)
         return SP_OK;
+    qsort(tr->rec, tr->n, sizeof *tr->rec, by_id);
 
     /* Nucleation sites from the births. */
     sp_birth *bi = malloc(sizeof *bi * tr->n);
