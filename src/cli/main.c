@@ -74,7 +74,8 @@ static const char MEASURE_HELP[] =
     "  --overlay-video     also write overlay.mkv, every frame annotated\n"
     "Running\n"
     "  --threads N         worker threads (default all cores)\n"
-    "  --quiet             no progress or summary on stderr\n";
+    "  --quiet             no progress or summary on stderr\n"
+    "  --json              print summary.json on stdout when done\n";
 
 static const char SYNTH_HELP[] =
     "usage: spume synth SCENARIO --out DIR [options]\n"
@@ -94,7 +95,7 @@ int cmd_measure(int argc, char **argv)
     const char *cmd = "measure", *input = NULL, *out = NULL;
     sp_measure_settings s;
     sp_measure_settings_default(&s);
-    int quiet = 0;
+    int quiet = 0, json = 0;
     enum { MAX_SET = 32 };
     const char *liquid_set[MAX_SET];
     for (int i = 0; i < argc; i++) {
@@ -173,6 +174,8 @@ int cmd_measure(int argc, char **argv)
             if (!(d > 0 && d < 1))
                 return usage_error(cmd, "--still-level must lie between 0 and 1, not '%s'", v);
             s.still_level = d;
+        } else if (!strcmp(a, "--json")) {
+            json = 1;
         } else if (!strcmp(a, "--no-report")) {
             s.report = 0;
         } else if (!strcmp(a, "--overlay-video")) {
@@ -329,6 +332,21 @@ int cmd_measure(int argc, char **argv)
                 "spume measure: %lld frames (%dx%d), %lld bubbles in %lld tracks, mean holdup %.4f -> %s/\n",
                 (long long)rep.frames, rep.width, rep.height, (long long)rep.detections,
                 (long long)rep.tracks, rep.holdup, out);
+    if (json) {
+        /* The machine-readable summary, exactly as written to the folder. */
+        char path[4200];
+        snprintf(path, sizeof path, "%s/summary.json", out);
+        FILE *f = fopen(path, "rb");
+        if (!f) {
+            fprintf(stderr, "spume measure: %s: cannot reopen for --json\n", path);
+            return 1;
+        }
+        char buf[65536];
+        size_t k;
+        while ((k = fread(buf, 1, sizeof buf, f)) > 0)
+            fwrite(buf, 1, k, stdout);
+        fclose(f);
+    }
     return 0;
 }
 

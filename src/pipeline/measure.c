@@ -67,7 +67,7 @@ typedef struct bgset {
     float **img;    /* n frame-sized float images */
     double *centre; /* selection position (0-based delivered frame count) each estimate stands for */
     char mode[32];
-    int samples; /* frames sampled per estimate */
+    int samples;      /* frames sampled per estimate */
     int still_filled; /* dark still objects refilled from the surrounding light (all estimates) */
 } bgset;
 
@@ -296,6 +296,30 @@ static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings
     }
 }
 
+/* Radial distortion recorded by the calibration: move each bubble to undistorted pixels and scale
+ * its sizes by the local magnification of the correction, before tracking and writing, so every
+ * table holds the corrected geometry. */
+static void undistort_bubbles(slot *sl, const sp_calib_result *cal, int ox, int oy)
+{
+    for (int i = 0; i < sl->n; i++) {
+        sp_bubble *b = &sl->bub[i];
+        double x = b->x + ox, y = b->y + oy, ux, uy, ax, ay, bx, by, cx, cy, dx, dy;
+        if (sp_calib_undistort(cal, x, y, &ux, &uy) || sp_calib_undistort(cal, x - 1, y, &ax, &ay) ||
+            sp_calib_undistort(cal, x + 1, y, &bx, &by) || sp_calib_undistort(cal, x, y - 1, &cx, &cy) ||
+            sp_calib_undistort(cal, x, y + 1, &dx, &dy))
+            continue; /* outside the model's range: left as measured */
+        double m = 0.25 * (hypot(bx - ax, by - ay) + hypot(dx - cx, dy - cy));
+        b->x = ux - ox;
+        b->y = uy - oy;
+        b->major_px *= m;
+        b->minor_px *= m;
+        b->d_area_px *= m;
+        b->d_vol_px *= m;
+        b->area_px *= m * m;
+        b->u_d_px *= m;
+    }
+}
+
 static const char BUBBLE_HEADER[] =
     "frame,t_s,track,x_px,y_px,x_mm,y_mm,area_px,major_mm,minor_mm,tilt_deg,"
     "d_area_mm,d_vol_mm,aspect,edge,split,major_px,minor_px,solidity,contrast,"
@@ -328,6 +352,8 @@ static int write_summary(FILE *f, const char *input, const sp_measure_settings *
         sp_jsonw_knum(&j, "mm_per_px_uncertainty", cal->mm_per_px_uncertainty);
         sp_jsonw_knum(&j, "rotation_deg", cal->rotation_deg);
         sp_jsonw_kstr(&j, "image", cal->image);
+        sp_jsonw_kint(&j, "radial_terms", cal->radial.terms);
+        sp_jsonw_kbool(&j, "distortion_corrected", cal->radial.terms > 0);
     } else {
         sp_jsonw_kstr(&j, "source", s->mm_per_px > 0 ? "scale given" : "none");
     }
@@ -507,6 +533,13 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         return rc;
     const sp_source_info *info = sp_source_get_info(src);
     const int w = info->width, h = info->height;
+    if (have_cal && cal.radial.terms > 0 &&
+        (cal.width != info->full_width || cal.height != info->full_height)) {
+        rc = sp_error_set(err, SP_ERR_INPUT,
+                          "%s: the calibration's distortion was measured on %dx%d images but %s is %dx%d",
+                          s->calib_file, cal.width, cal.height, input, info->full_width, info->full_height);
+        goto done;
+    }
     const size_t npx = (size_t)w * (size_t)h;
 
     if (s->bg_image)
@@ -599,6 +632,9 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                     sp_error_set(err, sl->rc, "%s: frame %lld: %s", input, (long long)sl->index, sl->err.msg);
                 goto done;
             }
+            if (have_cal && cal.radial.terms > 0)
+                undistort_bubbles(sl, &cal, s->source.roi.w > 0 ? s->source.roi.x : 0,
+                                  s->source.roi.h > 0 ? s->source.roi.y : 0);
             if (tr) {
                 if ((rc = sp_trackrun_frame(tr, sl->index, sl->t, sl->bub, sl->n, sl->ids, err)))
                     goto done;
