@@ -58,10 +58,10 @@ print(f"spume benchmark, work directory {work}")
 print(f"machine: {os.cpu_count()} cores")
 
 # 1. Detection speed on 1024x1024 frames.
-scene = os.path.join(work, "plume1024")
-run([spume, "synth", "plume", "--out", scene, "--size", "1024x1024", "--frames", str(args.frames), "--no-png",
+scene = os.path.join(work, "column1024")
+run([spume, "synth", "column", "--out", scene, "--size", "1024x1024", "--frames", str(args.frames), "--no-png",
      "--quiet"])
-raw = os.path.join(work, "plume1024.nut")
+raw = os.path.join(work, "column1024.nut")
 ffmpeg("-i", os.path.join(scene, "video.mkv"), "-c:v", "rawvideo", "-pix_fmt", "gray", raw)
 rates = {}
 for n in (1, 2):
