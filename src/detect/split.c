@@ -271,6 +271,10 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, i
         if (!g[i].ok || p->rms_px > tolerance(&p->el) || p->el.a * p->el.b < 16.0 ||
             p->el.b < 0.25 * p->el.a || p->span < 0.35)
             return SP_OK;
+        /* A small piece seen over little of its outline is not pinned down: its ellipse can swell into
+         * the neighbour that hides it. */
+        if (sqrt(p->el.a * p->el.b) < 10.0 && p->span < 0.5)
+            return SP_OK;
         if (p->el.cx < e->wx0 || p->el.cy < e->wy0 || p->el.cx > e->wx0 + e->ww - 1 ||
             p->el.cy > e->wy0 + e->wh - 1)
             return SP_OK;
