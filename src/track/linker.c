@@ -13,6 +13,9 @@
 #include "track/assign.h"
 
 #include <math.h>
+#ifdef LINKDEBUG
+#include <stdio.h>
+#endif
 #include <stdlib.h>
 #include <string.h>
 
@@ -31,6 +34,7 @@ typedef struct active {
     int64_t last_frame;
     double last_t;
     int missed_run, missed_total;
+    int nclean; /* detections clear of the border and of merges */
     int hidden; /* the current run of misses is spent inside a merged or cut detection */
     sp_track_point *pts;
     int n, cap;
@@ -236,11 +240,13 @@ static int append_point(active *a, int64_t frame, double t_s, const sp_link_det 
     p->tilt_deg = d->tilt_deg;
     p->area_px = d->area_px;
     p->edge = d->edge;
-    /* A bubble cut by the border shows only part of itself: keep the size and shape it had. */
-    if (!d->edge || a->n == 1) {
+    /* A bubble cut by the border shows only part of itself: keep the size and shape it had.
+     * Until it is first seen whole, the largest part seen is the best guess of its size. */
+    if (!d->edge || a->n == 1 || (a->nclean == 0 && d->d_px > a->d)) {
         a->d = d->d_px;
         a->aspect = d->aspect;
     }
+    a->nclean += !d->edge;
     a->edge = d->edge;
     a->last_frame = frame;
     a->last_t = t_s;
@@ -398,18 +404,29 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                             double e2 = dx * dx + dy * dy;
                             if (e2 > g * g)
                                 continue;
+                            /* Entering or leaving the view or a merge: the visible part's
+                             * centroid is off the bubble's by up to a radius. */
                             double cst;
                             if (d[j].edge || a->edge) {
-                                /* Entering or leaving the view: the visible part's size and shape
-                                 * say little, and its centroid wanders by up to a radius. */
                                 double slack = 0.25 * fmax(a->d, d[j].d_px);
                                 cst = e2 / (s + slack * slack);
-                            } else {
+                            } else
+                                cst = e2 / s;
+                            /* A whole outline is compared with the bubble's size and shape once
+                             * the track has seen it whole; a cut or merged one says little. */
+                            if (!d[j].edge && a->nclean > 0) {
                                 double dm = fmax(a->d, d[j].d_px);
                                 double rs = dm > 0 ? (d[j].d_px - a->d) / dm : 0;
                                 double da = d[j].aspect - a->aspect;
-                                cst = e2 / s + o->w_size * rs * rs + o->w_aspect * da * da;
+                                cst += o->w_size * rs * rs + o->w_aspect * da * da;
                             }
+#ifdef LINKDEBUG
+                            printf("F %lld track %lld (%.1f,%.1f) v(%.2f,%.2f) p00 %.2f p11 %.2f d%.0f e%d "
+                                   "miss%d -> det %d (%.1f,%.1f) d%.0f e%d cost %.2f\n",
+                                   (long long)frame, (long long)a->id, px, py, a->k.vx, a->k.vy, a->k.p00,
+                                   a->k.p11, a->d, a->edge, a->missed_run, j, d[j].x, d[j].y, d[j].d_px,
+                                   d[j].edge, cst);
+#endif
                             if (!(cst < o->cost_max))
                                 continue;
                             if (grow_pairs(lk, np + 2))
@@ -445,7 +462,19 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
         active *a = &lk->act[i];
         int j = lk->r2c[i];
         if (j < n) {
-            sp_kalman_cv_update(&a->k, d[j].x, d[j].y, r_meas);
+            if (d[j].edge != a->edge && a->n > 1) {
+                /* The outline starts or stops being cut or merged: the centroid jumps by the
+                 * offset between the visible part and the bubble, which is not motion. Take
+                 * the position, keep the velocity but doubt it (the cut part's centroid moves at
+                 * another speed than the bubble). */
+                double slack = 0.25 * fmax(a->d, d[j].d_px);
+                a->k.x = d[j].x;
+                a->k.y = d[j].y;
+                a->k.p00 = r_meas;
+                a->k.p01 = 0;
+                a->k.p11 = fmax(a->k.p11, slack * slack);
+            } else
+                sp_kalman_cv_update(&a->k, d[j].x, d[j].y, r_meas);
             if (append_point(a, frame, t_s, &d[j]))
                 goto oom;
             ids[j] = a->id;
