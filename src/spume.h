@@ -160,8 +160,10 @@ typedef struct sp_measure_settings {
     int report;                  /* 1: write report.html with plots and overlay thumbnails (default 1) */
     int overlay_video;           /* 1: also write the annotated video overlay.mkv (default 0) */
 
-    int threads;             /* worker threads, 0 = OpenMP default */
-    sp_progress_fn progress; /* may be NULL; called from the calling thread */
+    int threads;              /* worker threads, 0 = OpenMP default */
+    const volatile int *stop; /* may be NULL; when it becomes non-zero the run finishes the frames in
+                                 hand and writes valid tables marked incomplete (an interrupt) */
+    sp_progress_fn progress;  /* may be NULL; called from the calling thread */
     void *progress_ud;
 } sp_measure_settings;
 
@@ -173,6 +175,8 @@ typedef struct sp_measure_report {
     int64_t tracks;     /* tracks written */
     int64_t sites;      /* nucleation sites found */
     double d32_mm;      /* Sauter mean over tracks (NaN if none) */
+    int complete;       /* 0 when the run was stopped early (settings.stop) */
+    int64_t next_frame; /* the frame an interrupted run would go on from */
     double fps;         /* frame rate used */
     double holdup;      /* mean projected gas fraction of the region */
     int width, height;  /* analysed region */

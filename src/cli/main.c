@@ -5,6 +5,7 @@
 #include "synth/synth.h"
 
 #include <errno.h>
+#include <signal.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -89,6 +90,18 @@ static const char SYNTH_HELP[] =
     "  --no-video          do not write the FFV1 video\n"
     "  --threads N         worker threads (default all cores)\n"
     "  --quiet             no progress on stderr\n";
+
+/* Set by SIGINT/SIGTERM during measure: the one piece of global state in the program, as a signal
+ * handler can reach nothing else. The run polls it between batches of frames. */
+static volatile sig_atomic_t interrupted;
+static volatile int stop_request;
+
+static void on_signal(int sig)
+{
+    (void)sig;
+    interrupted = 1;
+    stop_request = 1;
+}
 
 int cmd_measure(int argc, char **argv)
 {
@@ -318,6 +331,13 @@ int cmd_measure(int argc, char **argv)
     progress_state ps = {!quiet && isatty(2), 0};
     s.progress = on_progress;
     s.progress_ud = &ps;
+    s.stop = &stop_request;
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
     sp_measure_report rep;
     sp_error err;
     sp_error_clear(&err);
@@ -325,7 +345,14 @@ int cmd_measure(int argc, char **argv)
     end_progress(&ps);
     if (rc) {
         fprintf(stderr, "spume measure: %s\n", err.msg);
-        return err.code == SP_ERR_INPUT ? 2 : 1;
+        return interrupted ? 130 : err.code == SP_ERR_INPUT ? 2 : 1;
+    }
+    if (interrupted || !rep.complete) {
+        fprintf(stderr,
+                "spume measure: interrupted after %lld frames: tables in %s are valid and marked incomplete "
+                "in summary.json (the next frame would be %lld)\n",
+                (long long)rep.frames, out, (long long)rep.next_frame);
+        return 130;
     }
     if (!quiet)
         fprintf(stderr,

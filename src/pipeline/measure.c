@@ -187,6 +187,11 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
                 break;
             take = 1;
         }
+        if (s->stop && *s->stop) {
+            rc = sp_error_set(err, SP_ERR_INPUT,
+                              "%s: interrupted while estimating the background; nothing written", input);
+            goto done;
+        }
         if ((rc = sp_source_next(src, &img, &idx, &t, &got, err)))
             goto done;
         if (!got)
@@ -263,6 +268,8 @@ typedef struct totals {
     double holdup_sum;
     double volume_sum; /* summed over frames: gas volume fraction of the illuminated volume */
     double t_first, t_last;
+    int64_t last_index;
+    int stopped; /* the run was stopped before the end of the selection */
 } totals;
 
 static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings *s,
@@ -335,6 +342,9 @@ static int write_summary(FILE *f, const char *input, const sp_measure_settings *
     sp_jsonw_kstr(&j, "tool", "spume");
     sp_jsonw_kstr(&j, "version", SP_VERSION);
     sp_jsonw_kstr(&j, "command", "measure");
+    sp_jsonw_kbool(&j, "complete", !tot->stopped);
+    if (tot->stopped)
+        sp_jsonw_kint(&j, "next_frame", tot->last_index + (s->source.step > 0 ? s->source.step : 1));
     sp_jsonw_kint(&j, "frames", tot->frames);
     sp_jsonw_knum(&j, "fps", fps);
     sp_jsonw_key(&j, "mm_per_px");
@@ -604,6 +614,10 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     double t0 = now_s();
     int64_t pos = 0;
     for (;;) {
+        if (s->stop && *s->stop) {
+            tot.stopped = 1;
+            break;
+        }
         int nb = 0, got = 1;
         while (nb < batch) {
             if ((rc = sp_source_next(src, &slots[nb].img, &slots[nb].index, &slots[nb].t, &got, err)))
@@ -648,6 +662,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                 vol += M_PI / 6.0 * dv * dv * dv;
             }
             tot.volume_sum += vol / region_mm3;
+            tot.last_index = sl->index;
             if (tot.frames == 0)
                 tot.t_first = sl->t;
             tot.t_last = sl->t;
@@ -668,7 +683,10 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         }
     }
     if (tot.frames == 0) {
-        rc = sp_error_set(err, SP_ERR_INPUT, "%s: the selection holds no frames", input);
+        rc = tot.stopped
+                 ? sp_error_set(err, SP_ERR_INPUT,
+                                "%s: interrupted before any frame was analysed; nothing written", input)
+                 : sp_error_set(err, SP_ERR_INPUT, "%s: the selection holds no frames", input);
         goto done;
     }
 
@@ -693,7 +711,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         (tr && ((rc = sp_outfile_commit(&ot, err)) || (rc = sp_outfile_commit(&oz, err)))) ||
         (rc = sp_outfile_commit(&os, err)))
         goto done;
-    if (s->report) {
+    if (s->report && !tot.stopped) {
         /* The evidence: plots, tables and overlay thumbnails of what was measured. */
         sp_report_opts ro;
         sp_report_opts_default(&ro);
@@ -706,6 +724,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         rep->frames = tot.frames;
         rep->detections = tot.detections;
         rep->tracks = tr ? (int64_t)sp_trackrun_count(tr) : 0;
+        rep->complete = !tot.stopped;
+        rep->next_frame = tot.last_index + (s->source.step > 0 ? s->source.step : 1);
         rep->sites = 0;
         rep->d32_mm = NAN;
         rep->fps = fps;
