@@ -13,9 +13,6 @@
 #include "track/assign.h"
 
 #include <math.h>
-#ifdef LINKDEBUG
-#include <stdio.h>
-#endif
 #include <stdlib.h>
 #include <string.h>
 
@@ -70,7 +67,7 @@ void sp_linker_opts_default(sp_linker_opts *o)
     o->birth_speed_px = 10;
     o->meas_sigma_px = 0.5;
     o->accel_sigma_px = 0.5;
-    o->max_gap_hidden = 30;
+    o->max_gap_hidden = 50;
     o->w_size = 10;
     o->w_aspect = 5;
     o->cost_max = 30;
@@ -330,11 +327,13 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
 
     /* Uniform grid over the detections; the cell is the median gate, enlarged until the grid
      * holds at most about 4 cells per detection, so building and querying it cost O(n log n). */
-    double minx = 0, maxx = 0, miny = 0, maxy = 0, cell = 1;
+    double minx = 0, maxx = 0, miny = 0, maxy = 0, cell = 1, maxrad = 0;
     long gw = 1, gh = 1;
     if (R > 0 && n > 0) {
         minx = maxx = d[0].x;
         miny = maxy = d[0].y;
+        for (int j = 0; j < n; j++)
+            maxrad = fmax(maxrad, sqrt(fmax(d[j].area_px, 0) / M_PI));
         for (int j = 1; j < n; j++) {
             minx = fmin(minx, d[j].x);
             maxx = fmax(maxx, d[j].x);
@@ -420,13 +419,6 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                                 double da = d[j].aspect - a->aspect;
                                 cst += o->w_size * rs * rs + o->w_aspect * da * da;
                             }
-#ifdef LINKDEBUG
-                            printf("F %lld track %lld (%.1f,%.1f) v(%.2f,%.2f) p00 %.2f p11 %.2f d%.0f e%d "
-                                   "miss%d -> det %d (%.1f,%.1f) d%.0f e%d cost %.2f\n",
-                                   (long long)frame, (long long)a->id, px, py, a->k.vx, a->k.vy, a->k.p00,
-                                   a->k.p11, a->d, a->edge, a->missed_run, j, d[j].x, d[j].y, d[j].d_px,
-                                   d[j].edge, cst);
-#endif
                             if (!(cst < o->cost_max))
                                 continue;
                             if (grow_pairs(lk, np + 2))
@@ -487,12 +479,44 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
              * projection, one passing behind another). Such a track may coast longer and take up its bubble
              * when they part. */
             a->hidden = 0;
-            for (int jj = 0; jj < n && !a->hidden; jj++) {
-                if (!d[jj].edge && !(d[jj].d_px > 1.3 * a->d))
-                    continue;
-                double rr = sqrt(d[jj].area_px / M_PI);
-                double dx = a->k.x - d[jj].x, dy = a->k.y - d[jj].y;
-                a->hidden = dx * dx + dy * dy <= rr * rr;
+            int hj = -1;
+            double he2 = 0;
+            if (n > 0) {
+                /* Its outline overlapping the detection's disc is enough: a small bubble behind
+                 * a large one sits off the merged centroid by up to the large one's radius.
+                 * Looked up through the grid, within the largest detection radius. */
+                double reach = maxrad + 0.5 * a->d, px = a->k.x, py = a->k.y;
+                if (px + reach >= minx && px - reach <= maxx && py + reach >= miny && py - reach <= maxy) {
+                    long cx0 = (long)fmax(0, floor((px - reach - minx) / cell));
+                    long cx1 = (long)fmin((double)gw - 1, floor((px + reach - minx) / cell));
+                    long cy0 = (long)fmax(0, floor((py - reach - miny) / cell));
+                    long cy1 = (long)fmin((double)gh - 1, floor((py + reach - miny) / cell));
+                    for (long cy = cy0; cy <= cy1; cy++)
+                        for (long cx = cx0; cx <= cx1; cx++) {
+                            long c = cy * gw + cx;
+                            for (int k = lk->cellstart[c]; k < lk->cellstart[c + 1]; k++) {
+                                int jj = lk->cellidx[k];
+                                if (!d[jj].edge && !(d[jj].d_px > 1.3 * a->d))
+                                    continue;
+                                double rr = sqrt(d[jj].area_px / M_PI) + 0.5 * a->d;
+                                double dx = px - d[jj].x, dy = py - d[jj].y;
+                                double e2 = dx * dx + dy * dy;
+                                if (e2 <= rr * rr && (hj < 0 || e2 < he2)) {
+                                    hj = jj;
+                                    he2 = e2;
+                                }
+                            }
+                        }
+                }
+            }
+            if (hj >= 0) {
+                /* Share the merged detection: the hidden bubble moves with it, somewhere inside
+                 * it, so its centroid is a loose measurement of the bubble (variance of half the
+                 * merged radius, squared). Keeps the coasting track with its bubble through
+                 * zigzags instead of drifting on a straight line. No point is recorded. */
+                double rr = sqrt(d[hj].area_px / M_PI);
+                a->hidden = 1;
+                sp_kalman_cv_update(&a->k, d[hj].x, d[hj].y, r_meas + rr * rr);
             }
         }
     }

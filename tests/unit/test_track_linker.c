@@ -292,8 +292,54 @@ static void test_max_points(void)
     sp_linker_free(lk);
 }
 
+/* A small bubble passes behind a large one (invented geometry): while their outlines overlap the
+ * detector gives one merged outline, flagged, at the area-weighted centroid. When they part, each
+ * keeps its id; the small one's track is not ended while hidden. */
+static void test_occlusion(void)
+{
+    sp_linker *lk = NULL;
+    sp_error err;
+    CHECK(sp_linker_new(&lk, NULL, &err) == 0, "new");
+    const double db = 60, ds = 25, ab = M_PI * db * db / 4, as = M_PI * ds * ds / 4;
+    int64_t big0 = 0, small0 = 0, big1 = 0, small1 = 0;
+    int merged = 0, ok = 1;
+    for (int f = 0; f < 45 && ok; f++) {
+        double bx = 200, by = 600 - 10.0 * f, sx = 140 + 3.0 * f, sy = 600 - 10.0 * f;
+        sp_link_det d[2];
+        int64_t ids[2];
+        int n;
+        if (fabs(sx - bx) < 35) {
+            double a = ab + as;
+            d[0] = (sp_link_det){
+                (ab * bx + as * sx) / a, (ab * by + as * sy) / a, sqrt(4 * a / M_PI), 0.7, 0, a, 1};
+            n = 1;
+            merged++;
+        } else {
+            d[0] = det(bx, by, db);
+            d[1] = det(sx, sy, ds);
+            n = 2;
+        }
+        ok = sp_linker_push(lk, f, f / 500.0, d, n, ids, &err) == 0;
+        if (f == 5) {
+            big0 = ids[0];
+            small0 = ids[1];
+        }
+        if (f == 44) {
+            big1 = ids[0];
+            small1 = ids[1];
+        }
+    }
+    CHECK(ok && merged >= 20, "pushed, %d merged frames", merged);
+    CHECK(big0 != small0 && big1 == big0, "large bubble keeps its id (%lld -> %lld)", (long long)big0,
+          (long long)big1);
+    CHECK(small1 == small0, "small bubble re-acquired after the overlap (%lld -> %lld)", (long long)small0,
+          (long long)small1);
+    sp_linker_free(lk);
+}
+
 int main(void)
 {
+    test_occlusion();
     test_kalman();
     test_crossing();
     test_gaps();
