@@ -20,7 +20,7 @@ typedef struct sp_linker_opts {
                                numbers (default 0) */
     int max_gap;            /* frames in a row a track may miss and still be continued (default 3) */
     int max_gap_hidden;     /* the same while its prediction lies inside a detection flagged edge (cut
-                               by the border, or merged with another bubble) (default 30) */
+                               by the border, or merged with another bubble) (default 50) */
     double gate_px_min;     /* smallest gate radius around the prediction, px (default 3) */
     double gate_diam_frac;  /* gate radius at least this × the track's diameter (default 1.0) */
     double gate_speed_frac; /* and at least this × predicted speed × frames since last seen (0.5) */
