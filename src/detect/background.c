@@ -53,18 +53,37 @@ int sp_bg_builder_count(const sp_bg_builder *b)
     return b->n;
 }
 
-/* Insertion sort: n is at most SP_BG_MAX_SAMPLES and the values are small integers. */
-static void sort_u16(uint16_t *v, int n)
+/* The k-th smallest of v[0..n) (Hoare's quickselect, median-of-three pivot), in place: the per-pixel
+ * percentile needs two order statistics, not a sorted list. */
+static uint16_t select_u16(uint16_t *v, int n, int k)
 {
-    for (int i = 1; i < n; i++) {
-        uint16_t x = v[i];
-        int j = i - 1;
-        while (j >= 0 && v[j] > x) {
-            v[j + 1] = v[j];
-            j--;
+    int lo = 0, hi = n - 1;
+    while (hi > lo) {
+        int mid = lo + (hi - lo) / 2;
+        uint16_t a = v[lo], b = v[mid], c = v[hi];
+        uint16_t piv = a < b ? (b < c ? b : (a < c ? c : a)) : (a < c ? a : (b < c ? c : b));
+        int i = lo, j = hi;
+        while (i <= j) {
+            while (v[i] < piv)
+                i++;
+            while (v[j] > piv)
+                j--;
+            if (i <= j) {
+                uint16_t t = v[i];
+                v[i] = v[j];
+                v[j] = t;
+                i++;
+                j--;
+            }
         }
-        v[j + 1] = x;
+        if (k <= j)
+            hi = j;
+        else if (k >= i)
+            lo = i;
+        else
+            return v[k];
     }
+    return v[k];
 }
 
 int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nthreads, sp_error *err)
@@ -93,8 +112,17 @@ int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nth
                 else
                     for (int k = 0; k < n; k++)
                         v[k] = ((const uint16_t *)b->planes)[(size_t)k * plane + i];
-                sort_u16(v, n);
-                bg[i] = (float)(v[lo] + frac * (v[hi] - v[lo]));
+                uint16_t a = select_u16(v, n, lo);
+                /* After selecting lo, everything above index lo is >= v[lo]: the next order
+                 * statistic is the smallest of them. */
+                uint16_t b = a;
+                if (hi != lo) {
+                    b = v[lo + 1];
+                    for (int q = lo + 2; q < n; q++)
+                        if (v[q] < b)
+                            b = v[q];
+                }
+                bg[i] = (float)(a + frac * (b - a));
             }
         }
     }
@@ -135,10 +163,17 @@ int sp_bg_from_image(const sp_image *img, float *bg, sp_error *err)
 
 static void poly_terms(double x, double y, double *t)
 {
+    /* Powers by multiplication: this runs for every pixel of the background. */
+    double px[POLY_DEG + 1], py[POLY_DEG + 1];
+    px[0] = py[0] = 1.0;
+    for (int i = 1; i <= POLY_DEG; i++) {
+        px[i] = px[i - 1] * x;
+        py[i] = py[i - 1] * y;
+    }
     int k = 0;
     for (int d = 0; d <= POLY_DEG; d++)
         for (int j = 0; j <= d; j++)
-            t[k++] = pow(x, d - j) * pow(y, j);
+            t[k++] = px[d - j] * py[j];
 }
 
 /* Solve the POLY_N normal equations in place by Gaussian elimination with partial pivoting. */

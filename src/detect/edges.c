@@ -100,18 +100,43 @@ static inline int ext_at(const sp_edges *e, int x, int y)
     return e->ext[(size_t)wy * e->ww + wx];
 }
 
-static int cmp_float(const void *a, const void *b)
-{
-    float x = *(const float *)a, y = *(const float *)b;
-    return (x > y) - (x < y);
-}
-
 /* q-quantile (0..1) by sorting: deterministic and exact; the arrays are component-sized. */
 static float quantile(float *v, size_t n, double q)
 {
-    qsort(v, n, sizeof *v, cmp_float);
     size_t k = (size_t)(q * (double)(n - 1) + 0.5);
-    return v[k < n ? k : n - 1];
+    if (k >= n)
+        k = n - 1;
+    /* Hoare's quickselect: the k-th order statistic without sorting (the result equals the sorted
+     * array's element k, so it is as deterministic as the sort was). */
+    size_t lo = 0, hi = n - 1;
+    while (hi > lo) {
+        size_t mid = lo + (hi - lo) / 2;
+        float a = v[lo], b = v[mid], c = v[hi];
+        float piv = a < b ? (b < c ? b : (a < c ? c : a)) : (a < c ? a : (b < c ? c : b));
+        size_t i = lo, j = hi;
+        while (i <= j) {
+            while (v[i] < piv)
+                i++;
+            while (v[j] > piv)
+                j--;
+            if (i <= j) {
+                float t = v[i];
+                v[i] = v[j];
+                v[j] = t;
+                i++;
+                if (j == 0)
+                    break;
+                j--;
+            }
+        }
+        if (k <= j && j < i)
+            hi = j;
+        else if (k >= i)
+            lo = i;
+        else
+            return v[k];
+    }
+    return v[k];
 }
 
 static const int dir4[4][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1}};
