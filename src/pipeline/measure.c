@@ -269,6 +269,8 @@ typedef struct totals {
     double volume_sum; /* summed over frames: gas volume fraction of the illuminated volume */
     double t_first, t_last;
     int64_t last_index;
+    double su2; /* sum of squared per-bubble diameter uncertainties (mm²), non-edge bubbles */
+    int64_t n_u;
     int stopped; /* the run was stopped before the end of the selection */
 } totals;
 
@@ -293,6 +295,8 @@ static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings
             sqrt(b->u_d_px * sc * b->u_d_px * sc +
                  (b->d_vol_px * sc * rel_u_scale) * (b->d_vol_px * sc * rel_u_scale)));
         if (!b->edge && !b->cluster) {
+            tot->su2 += b->u_d_px * sc * b->u_d_px * sc;
+            tot->n_u++;
             double d = b->d_vol_px * sc;
             tot->used++;
             tot->s1 += d;
@@ -405,6 +409,19 @@ static int write_summary(FILE *f, const char *input, const sp_measure_settings *
     sp_jsonw_kint(&j, "y", s->source.roi.h > 0 ? s->source.roi.y : 0);
     sp_jsonw_kint(&j, "width", info->width);
     sp_jsonw_kint(&j, "height", info->height);
+    sp_jsonw_obj_end(&j);
+
+    /* The per-bubble uncertainty carried into the statistics: the scale's share is common to every
+     * bubble, so it moves every mean by the same fraction and does not average out; the per-bubble
+     * parts (quantisation, blur, fit) are independent and shrink as 1/sqrt(n) in a mean. */
+    sp_jsonw_key(&j, "uncertainty");
+    sp_jsonw_obj(&j);
+    sp_jsonw_knum(&j, "scale_relative",
+                  cal && cal->mm_per_px > 0 ? cal->mm_per_px_uncertainty / cal->mm_per_px : NAN);
+    sp_jsonw_knum(&j, "bubble_rms_u_d_mm", tot->n_u > 0 ? sqrt(tot->su2 / tot->n_u) : NAN);
+    sp_jsonw_kint(&j, "bubbles", tot->n_u);
+    sp_jsonw_kstr(&j, "basis",
+                  "u of a mean diameter = sqrt((scale_relative * d)^2 + bubble_rms_u_d_mm^2 / n)");
     sp_jsonw_obj_end(&j);
 
     if (liq) {
