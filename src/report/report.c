@@ -46,9 +46,9 @@ typedef struct rdata {
 
 enum { F_FRAME, F_T, F_GAS, F_N };
 static const char *const fcols[F_N] = {"frame", "t_s", "gas_fraction"};
-enum { T_TRACK, T_D, T_VY, T_ASPECT, T_EO, T_SITE, T_TFIRST, T_N, T_SPEED, T_NN };
+enum { T_TRACK, T_D, T_VY, T_ASPECT, T_EO, T_SITE, T_TFIRST, T_N, T_SPEED, T_FOCUS, T_NN };
 static const char *const tcols[T_NN] = {"track", "d_vol_mm",  "vy_mm_s", "aspect_mean", "eo",
-                                        "site",  "t_first_s", "n",       "speed_mm_s"};
+                                        "site",  "t_first_s", "n",       "speed_mm_s",  "in_focus_frac"};
 enum { S_SITE, S_X, S_Y, S_N, S_RATE, S_DDET, S_GROWTH, S_NN };
 static const char *const scols[S_NN] = {"site", "x_mm", "y_mm", "n", "rate_hz", "d_detach_mm", "growth_mm_s"};
 enum { P_TRACK, P_TV, P_TA, P_DO, P_DA, P_NN };
@@ -191,9 +191,15 @@ static int collect_sizes(rdata *r, sizes *s, sp_error *err)
         return sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", r->dir);
     if (!t->found[col])
         return SP_OK;
+    /* The same tracks as summary.json's statistics: those mostly out of focus are left out unless
+     * the run kept them. */
+    const json_t *set = r->sum ? json_object_get(r->sum, "settings") : NULL;
+    int keep_defocused = set && json_is_true(json_object_get(set, "keep_defocused"));
     for (size_t i = 0; i < t->nrows; i++) {
         double d = t->col[col][i];
         if (!s->per_track && r->bub.found[B_EDGE] && r->bub.col[B_EDGE][i] > 0)
+            continue;
+        if (s->per_track && !keep_defocused && t->found[T_FOCUS] && t->col[T_FOCUS][i] < 0.5)
             continue;
         if (isfinite(d) && d > 0)
             s->d[s->n++] = d;
@@ -244,7 +250,7 @@ static void plot_hist(sp_sbuf *h, int *id, const sizes *s, int power, sp_report_
     snprintf(cap, sizeof cap,
              "%zu diameters (%s), 30 equal bins; moment-ratio means D[1,0], D[3,2], D[4,3] "
              "(ISO 9276-2) marked.",
-             s->n, s->per_track ? "one per track" : "one per non-edge detection");
+             s->n, s->per_track ? "one per track in focus, as in summary.json" : "one per non-edge detection");
     fig_close(h, cap);
     if (res)
         res->plots++;
