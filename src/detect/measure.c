@@ -326,8 +326,7 @@ int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labe
     *np = 0;
     whole->cluster = 0;
     sp_edges *e = &m->edges;
-    /* Cut outlines cannot be split reliably (and are left out of statistics anyway). */
-    if (!o->split || whole->edge || !(e->n_light - e->n_dark > 1e-3))
+    if (!o->split || !(e->n_light - e->n_dark > 1e-3))
         return SP_OK;
     const int w = v->frame->width;
     int rc = sp_edges_trace(e, v, labels, label, c, o->edge_level, err);
@@ -337,8 +336,12 @@ int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labe
         return rc;
     sp_split_piece pc[SP_SPLIT_MAX];
     int n = 0, status = SP_SPLIT_SINGLE;
-    if ((rc = sp_split_contour(m->splitter, e, labels, w, label, pc, &n, &status, err)))
+    if ((rc = sp_split_contour(m->splitter, e, w, v->frame->height, pc, &n, &status, err)))
         return rc;
+    /* A cluster cut by the border is taken only when split with confidence; its outline is no
+     * ellipse anyway, so nothing else is said of it (it is an edge object, out of the statistics). */
+    if (whole->edge && (status != SP_SPLIT_DONE || n > max))
+        return SP_OK;
     /* Not one ellipse either: the outline leaves the fitted ellipse by more than edge noise explains. */
     int not_ellipse = whole->fit && m->last_rms > 0.3 + 0.01 * sqrt(m->last_ab);
     if (status == SP_SPLIT_FAILED || (status == SP_SPLIT_DONE && n > max) ||
@@ -353,7 +356,7 @@ int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labe
         return rc;
     for (int i = 0; i < n; i++)
         if (!piece_on_edge(v, e, pc, n, i, o->edge_level, m->scratch)) {
-            whole->cluster = 1;
+            whole->cluster = !whole->edge;
             return SP_OK;
         }
     for (int i = 0; i < n; i++) {
@@ -379,6 +382,10 @@ int sp_measure_split(sp_measurer *m, const sp_frame_view *v, const int32_t *labe
         double ct = cos(el->theta), st = sin(el->theta);
         hx = sqrt(el->a * el->a * ct * ct + el->b * el->b * st * st);
         hy = sqrt(el->a * el->a * st * st + el->b * el->b * ct * ct);
+        /* Of a cluster cut by the border, only the pieces that reach it are cut (pixel edges at
+         * -0.5 and size - 0.5). */
+        b->edge = whole->edge && (el->cx - hx < 0.5 || el->cy - hy < 0.5 || el->cx + hx > w - 1.5 ||
+                                  el->cy + hy > v->frame->height - 1.5);
         b->x0 = (int)floor(el->cx - hx + 0.5);
         b->y0 = (int)floor(el->cy - hy + 0.5);
         b->x1 = (int)floor(el->cx + hx + 0.5);

@@ -146,13 +146,22 @@ static void fit_group(sp_splitter *s, const sp_edges *e, const arc *arcs, int na
     g->ok = 1;
 }
 
+/* Is the pixel centre (x, y) outside the fw×fh frame? */
+static int off_frame(double x, double y, int fw, int fh)
+{
+    return x < 0 || y < 0 || x > fw - 1 || y > fh - 1;
+}
+
 /* Share of the silhouette (window cells not in the exterior) and the union of the pieces that
- * overlap: intersection over union, on pixel centres. */
-static double union_iou(const sp_edges *e, const group *g, int ng)
+ * overlap: intersection over union, on pixel centres. Only the frame counts: a piece cut by the
+ * border goes on beyond it, where nothing was seen. */
+static double union_iou(const sp_edges *e, const group *g, int ng, int fw, int fh)
 {
     long inter = 0, uni = 0;
     for (int wy = 0; wy < e->wh; wy++)
         for (int wx = 0; wx < e->ww; wx++) {
+            if (off_frame(e->wx0 + wx, e->wy0 + wy, fw, fh))
+                continue;
             int sil = e->ext[(size_t)wy * e->ww + wx] != 2;
             int in = 0;
             for (int i = 0; i < ng && !in; i++)
@@ -163,23 +172,34 @@ static double union_iou(const sp_edges *e, const group *g, int ng)
     return uni ? (double)inter / (double)uni : 0;
 }
 
-/* Share of the pixel centres inside el (counted as pi·a·b) that lie in the silhouette. */
-static double inside_fraction(const sp_edges *e, const sp_ellipse *el)
+/* Share of the pixel centres inside el (counted as pi·a·b, less those off the frame) that lie in the
+ * silhouette. */
+static double inside_fraction(const sp_edges *e, const sp_ellipse *el, int fw, int fh)
 {
-    long in = 0;
+    long in = 0, off = 0;
     for (int wy = 0; wy < e->wh; wy++)
         for (int wx = 0; wx < e->ww; wx++)
-            in += e->ext[(size_t)wy * e->ww + wx] != 2 &&
+            in += e->ext[(size_t)wy * e->ww + wx] != 2 && !off_frame(e->wx0 + wx, e->wy0 + wy, fw, fh) &&
                   sp_ellipse_distance(el, e->wx0 + wx, e->wy0 + wy) <= 0;
-    return (double)in / (M_PI * el->a * el->b);
+    double ct = cos(el->theta), st = sin(el->theta);
+    double hx = sqrt(el->a * el->a * ct * ct + el->b * el->b * st * st);
+    double hy = sqrt(el->a * el->a * st * st + el->b * el->b * ct * ct);
+    if (off_frame(el->cx - hx, el->cy - hy, fw, fh) || off_frame(el->cx + hx, el->cy + hy, fw, fh)) {
+        /* Bounded: the centre lies in the window and the union check held the piece to the
+         * silhouette's size. */
+        int x0 = (int)floor(el->cx - hx), x1 = (int)ceil(el->cx + hx);
+        int y0 = (int)floor(el->cy - hy), y1 = (int)ceil(el->cy + hy);
+        for (int y = y0; y <= y1; y++)
+            for (int x = x0; x <= x1; x++)
+                off += off_frame(x, y, fw, fh) && sp_ellipse_distance(el, x, y) <= 0;
+    }
+    double vis = M_PI * el->a * el->b - (double)off;
+    return vis > 0 ? (double)in / vis : 0;
 }
 
-int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, int w, int label,
-                     sp_split_piece *pieces, int *np, int *status, sp_error *err)
+int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split_piece *pieces, int *np,
+                     int *status, sp_error *err)
 {
-    (void)labels;
-    (void)w;
-    (void)label;
     *np = 0;
     *status = SP_SPLIT_SINGLE;
     const int n = e->nc;
@@ -289,10 +309,10 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, i
         *status = g[0].p.span >= 0.9 ? SP_SPLIT_SINGLE : SP_SPLIT_FAILED;
         return SP_OK;
     }
-    if (union_iou(e, g, ng) < 0.85)
+    if (union_iou(e, g, ng, fw, fh) < 0.85)
         return SP_OK;
     for (int i = 0; i < ng; i++) /* a piece must lie in the silhouette, not stick out of it */
-        if (inside_fraction(e, &g[i].p.el) < 0.9)
+        if (inside_fraction(e, &g[i].p.el, fw, fh) < 0.9)
             return SP_OK;
     /* Deterministic order: by centre, top to bottom then left to right. */
     for (int i = 1; i < ng; i++)

@@ -34,10 +34,11 @@ void sp_splitter_free(sp_splitter *s);
 
 /* Examine the traced contour e->cpt (sp_edges_trace) of one component and, where it is a cluster,
  * split it. *status: SP_SPLIT_SINGLE (no concavity: one bubble), SP_SPLIT_DONE (*np ≥ 2 pieces
- * written, at most SP_SPLIT_MAX) or SP_SPLIT_FAILED (concave, but no confident split). labels/label
- * give the silhouette for the union check. Returns a status code (out of memory only). */
-int sp_split_contour(sp_splitter *s, const sp_edges *e, const int32_t *labels, int w, int label,
-                     sp_split_piece *pieces, int *np, int *status, sp_error *err);
+ * written, at most SP_SPLIT_MAX) or SP_SPLIT_FAILED (concave, but no confident split). fw×fh is the
+ * frame: a cluster cut by its border is split when the arcs inside pin the pieces down, and the
+ * silhouette checks count only pixels inside the frame. Returns a status code (out of memory only). */
+int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split_piece *pieces, int *np,
+                     int *status, sp_error *err);
 
 /* Signed RMS-free helper, exposed for tests: approximate geometric distance of (x, y) from el
  * (first-order, |F| / |∇F| with F the normalised implicit form). */
