@@ -157,9 +157,7 @@ int sp_trackrun_frame(sp_trackrun *tr, int64_t frame, double t_s, const sp_bubbl
                                     b[i].aspect,
                                     b[i].tilt_deg,
                                     b[i].area_px,
-                                    b[i].edge || b[i].cluster,
-                                    b[i].cluster,
-                                    b[i].split};
+                                    b[i].edge || b[i].cluster};
     int rc = sp_linker_push(tr->lk, frame, t_s, tr->dets, n, ids, err);
     if (rc)
         return rc;

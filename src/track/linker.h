@@ -12,9 +12,7 @@ typedef struct sp_link_det {
     double tilt_deg; /* major axis from +x, counter-clockwise, (-90, 90] */
     double area_px;  /* filled area */
     int edge;        /* outline not the bubble's own: cut by the frame or region border, or an
-                        unsplit cluster (cluster below) */
-    int cluster;     /* 1: overlapping bubbles that could not be split (sp_bubble.cluster) */
-    int split;       /* 0, or an id shared within the frame by the pieces of one split cluster */
+                        unsplit cluster of overlapping bubbles */
 } sp_link_det;
 
 typedef struct sp_linker_opts {

@@ -66,7 +66,7 @@ int main(int argc, char **argv)
                     *q = (bub){urand() * side, side, nrand(), -3 - 5 * urand(), 4 + 10 * urand()};
                 if (urand() < 0.02)
                     continue;
-                d[m++] = (sp_link_det){q->x, q->y, q->d * (1 + 0.03 * nrand()), 0.8, 0, q->d * q->d, 0, 0, 0};
+                d[m++] = (sp_link_det){q->x, q->y, q->d * (1 + 0.03 * nrand()), 0.8, 0, q->d * q->d, 0};
             }
             double t0 = now();
             if (sp_linker_push(lk, f, f / 1000.0, d, m, ids, &err)) {

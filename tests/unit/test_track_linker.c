@@ -23,7 +23,7 @@ static double nrand(void)
 
 static sp_link_det det(double x, double y, double d)
 {
-    sp_link_det q = {x, y, d, 0.8, 0, M_PI * d * d / 4, 0, 0, 0};
+    sp_link_det q = {x, y, d, 0.8, 0, M_PI * d * d / 4, 0};
     return q;
 }
 
@@ -311,7 +311,7 @@ static void test_occlusion(void)
         if (fabs(sx - bx) < 35) {
             double a = ab + as;
             d[0] = (sp_link_det){
-                (ab * bx + as * sx) / a, (ab * by + as * sy) / a, sqrt(4 * a / M_PI), 0.7, 0, a, 1, 1, 0};
+                (ab * bx + as * sx) / a, (ab * by + as * sy) / a, sqrt(4 * a / M_PI), 0.7, 0, a, 1};
             n = 1;
             merged++;
         } else {
