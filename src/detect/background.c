@@ -53,37 +53,53 @@ int sp_bg_builder_count(const sp_bg_builder *b)
     return b->n;
 }
 
-/* The k-th smallest of v[0..n) (Hoare's quickselect, median-of-three pivot), in place: the per-pixel
- * percentile needs two order statistics, not a sorted list. */
-static uint16_t select_u16(uint16_t *v, int n, int k)
+#define SEL_CHUNK 64 /* pixels selected together: their samples stay in L1 across the bit rounds */
+
+/* The k-th smallest (0-based) of each pixel's n samples, for the len pixels at offset off of every
+ * plane: a bitwise binary search on the value (radix selection). The answer is the largest c with
+ * #{v < c} <= k; it is built from the top bit down, each round counting for every pixel how many of
+ * its samples lie below the candidate. Every round is a pass of compares over contiguous bytes, which
+ * the compiler vectorises, where a per-pixel quickselect gathers samples a plane apart. n <= 255, so
+ * counts fit a byte. */
+static void select8(const uint8_t *planes, size_t plane, int n, size_t off, int len, int k, uint8_t *out)
 {
-    int lo = 0, hi = n - 1;
-    while (hi > lo) {
-        int mid = lo + (hi - lo) / 2;
-        uint16_t a = v[lo], b = v[mid], c = v[hi];
-        uint16_t piv = a < b ? (b < c ? b : (a < c ? c : a)) : (a < c ? a : (b < c ? c : b));
-        int i = lo, j = hi;
-        while (i <= j) {
-            while (v[i] < piv)
-                i++;
-            while (v[j] > piv)
-                j--;
-            if (i <= j) {
-                uint16_t t = v[i];
-                v[i] = v[j];
-                v[j] = t;
-                i++;
-                j--;
-            }
+    uint8_t res[SEL_CHUNK] = {0}, cand[SEL_CHUNK], cnt[SEL_CHUNK];
+    for (int bit = 7; bit >= 0; bit--) {
+        for (int x = 0; x < len; x++) {
+            cand[x] = (uint8_t)(res[x] | (1u << bit));
+            cnt[x] = 0;
         }
-        if (k <= j)
-            hi = j;
-        else if (k >= i)
-            lo = i;
-        else
-            return v[k];
+        for (int j = 0; j < n; j++) {
+            const uint8_t *p = planes + (size_t)j * plane + off;
+            for (int x = 0; x < len; x++)
+                cnt[x] = (uint8_t)(cnt[x] + (p[x] < cand[x]));
+        }
+        for (int x = 0; x < len; x++)
+            if (cnt[x] <= k)
+                res[x] = cand[x];
     }
-    return v[k];
+    memcpy(out, res, (size_t)len);
+}
+
+static void select16(const uint16_t *planes, size_t plane, int n, size_t off, int len, int k, uint16_t *out)
+{
+    uint16_t res[SEL_CHUNK] = {0}, cand[SEL_CHUNK];
+    uint8_t cnt[SEL_CHUNK];
+    for (int bit = 15; bit >= 0; bit--) {
+        for (int x = 0; x < len; x++) {
+            cand[x] = (uint16_t)(res[x] | (1u << bit));
+            cnt[x] = 0;
+        }
+        for (int j = 0; j < n; j++) {
+            const uint16_t *p = planes + (size_t)j * plane + off;
+            for (int x = 0; x < len; x++)
+                cnt[x] = (uint8_t)(cnt[x] + (p[x] < cand[x]));
+        }
+        for (int x = 0; x < len; x++)
+            if (cnt[x] <= k)
+                res[x] = cand[x];
+    }
+    memcpy(out, res, sizeof *out * (size_t)len);
 }
 
 int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nthreads, sp_error *err)
@@ -92,38 +108,38 @@ int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nth
         return sp_error_set(err, SP_ERR_INPUT, "background: no frames to estimate the light from");
     if (!(percentile >= 0 && percentile <= 100))
         return sp_error_set(err, SP_ERR_INPUT, "background: percentile %g outside 0..100", percentile);
-    const int n = b->n, w = b->w, h = b->h;
-    const size_t plane = (size_t)w * (size_t)h;
+    const int n = b->n;
+    const size_t plane = (size_t)b->w * (size_t)b->h;
     const double pos = percentile / 100.0 * (n - 1);
     const int lo = (int)floor(pos);
     const int hi = lo + 1 < n ? lo + 1 : lo;
     const double frac = pos - lo;
     const int nt = nthreads > 0 ? nthreads : omp_get_max_threads();
-#pragma omp parallel num_threads(nt)
-    {
-        uint16_t v[SP_BG_MAX_SAMPLES];
-#pragma omp for schedule(static)
-        for (int y = 0; y < h; y++) {
-            for (int x = 0; x < w; x++) {
-                size_t i = (size_t)y * (size_t)w + (size_t)x;
-                if (b->bytes == 1)
-                    for (int k = 0; k < n; k++)
-                        v[k] = b->planes[(size_t)k * plane + i];
-                else
-                    for (int k = 0; k < n; k++)
-                        v[k] = ((const uint16_t *)b->planes)[(size_t)k * plane + i];
-                uint16_t a = select_u16(v, n, lo);
-                /* After selecting lo, everything above index lo is >= v[lo]: the next order
-                 * statistic is the smallest of them. */
-                uint16_t b = a;
-                if (hi != lo) {
-                    b = v[lo + 1];
-                    for (int q = lo + 2; q < n; q++)
-                        if (v[q] < b)
-                            b = v[q];
-                }
-                bg[i] = (float)(a + frac * (b - a));
-            }
+    const long long nchunks = (long long)((plane + SEL_CHUNK - 1) / SEL_CHUNK);
+#pragma omp parallel for num_threads(nt) schedule(static)
+    for (long long c = 0; c < nchunks; c++) {
+        size_t off = (size_t)c * SEL_CHUNK;
+        int len = plane - off < SEL_CHUNK ? (int)(plane - off) : SEL_CHUNK;
+        float *d = bg + off;
+        if (b->bytes == 1) {
+            uint8_t va[SEL_CHUNK], vb[SEL_CHUNK];
+            select8(b->planes, plane, n, off, len, lo, va);
+            if (hi != lo)
+                select8(b->planes, plane, n, off, len, hi, vb);
+            else
+                memcpy(vb, va, sizeof va);
+            for (int x = 0; x < len; x++)
+                d[x] = (float)(va[x] + frac * (vb[x] - va[x]));
+        } else {
+            const uint16_t *pl = (const uint16_t *)b->planes;
+            uint16_t va[SEL_CHUNK], vb[SEL_CHUNK];
+            select16(pl, plane, n, off, len, lo, va);
+            if (hi != lo)
+                select16(pl, plane, n, off, len, hi, vb);
+            else
+                memcpy(vb, va, sizeof va);
+            for (int x = 0; x < len; x++)
+                d[x] = (float)(va[x] + frac * (vb[x] - va[x]));
         }
     }
     return SP_OK;

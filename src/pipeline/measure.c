@@ -502,6 +502,21 @@ static int load_liquid(const sp_measure_settings *s, sp_liquid *liq, sp_error *e
     return rc;
 }
 
+#define KEEP_MAX 16 /* frames kept for the report's thumbnails */
+
+static int keep_copy(sp_image *dst, const sp_image *src, sp_error *err)
+{
+    int rc = sp_image_alloc(dst, src->width, src->height, src->bytes, err);
+    if (rc)
+        return rc;
+    dst->bits = src->bits;
+    size_t row = (size_t)src->width * (size_t)src->bytes;
+    for (int y = 0; y < src->height; y++)
+        memcpy((char *)dst->data + (ptrdiff_t)y * dst->stride,
+               (const char *)src->data + (ptrdiff_t)y * src->stride, row);
+    return SP_OK;
+}
+
 static int slot_store(slot *sl, const sp_detect_result *r)
 {
     if (r->n > sl->cap) {
@@ -548,6 +563,9 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     sp_detector **det = NULL;
     float **bgbuf = NULL;
     totals tot = {0};
+    sp_image keep_img[KEEP_MAX] = {{0}};
+    int64_t keep_pos[KEEP_MAX], keep_idx[KEEP_MAX];
+    int nkeep = 0;
     const int nthreads = s->threads > 0 ? s->threads : omp_get_max_threads();
     int batch = nthreads * 4 > MAX_BATCH ? MAX_BATCH : nthreads * 4;
 
@@ -628,6 +646,18 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     const double sc = s->mm_per_px > 0 ? s->mm_per_px : 1.0;
     const double region_mm3 = s->illum_depth_mm > 0 ? (double)npx * sc * sc * s->illum_depth_mm : NAN;
 
+    /* The frames the report will draw by default, kept as they pass so that the recording need not
+     * be read again (the report reads it when the selection's length was not known in advance). */
+    if (s->report && !s->overlay_video && info->frames_selected > 0) {
+        sp_report_opts ro;
+        sp_report_opts_default(&ro);
+        nkeep = ro.thumbnails < KEEP_MAX ? ro.thumbnails : KEEP_MAX;
+        for (int q = 0; q < nkeep; q++) {
+            keep_pos[q] = (int64_t)sp_report_thumb_row((size_t)info->frames_selected, nkeep, q);
+            keep_idx[q] = -1;
+        }
+    }
+
     double t0 = now_s();
     int64_t pos = 0;
     for (;;) {
@@ -678,6 +708,11 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                 double dv = sl->bub[i].d_vol_px * sc;
                 vol += M_PI / 6.0 * dv * dv * dv;
             }
+            for (int q = 0; q < nkeep; q++)
+                if (keep_pos[q] == pos + k && (rc = keep_copy(&keep_img[q], &sl->img, err)) == SP_OK)
+                    keep_idx[q] = sl->index;
+            if (rc)
+                goto done;
             tot.volume_sum += vol / region_mm3;
             tot.last_index = sl->index;
             if (tot.frames == 0)
@@ -734,6 +769,17 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         sp_report_opts_default(&ro);
         ro.input = input;
         ro.video = s->overlay_video;
+        const sp_image *given[KEEP_MAX];
+        int ng = 0;
+        for (int q = 0; q < nkeep; q++)
+            if (keep_idx[q] >= 0) {
+                given[ng] = &keep_img[q];
+                keep_idx[ng] = keep_idx[q];
+                ng++;
+            }
+        ro.given_frames = given;
+        ro.given_index = keep_idx;
+        ro.ngiven = ng;
         if ((rc = sp_report_build(outdir, &ro, err)))
             goto done;
     }
@@ -771,6 +817,8 @@ done:
     free(det);
     free(bgbuf);
     bgset_free(&bg);
+    for (int q = 0; q < KEEP_MAX; q++)
+        sp_image_free(&keep_img[q]);
     sp_source_close(src);
     return rc;
 }

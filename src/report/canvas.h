@@ -38,5 +38,7 @@ int sp_canvas_text_width(const char *s, int scale);
 int sp_canvas_png(const sp_canvas *c, unsigned char **out, size_t *n, const char *what, sp_error *err);
 /* Write as PNG to path via a temporary name renamed when complete. */
 int sp_canvas_png_write(const sp_canvas *c, const char *path, sp_error *err);
+/* Write n encoded bytes to path the same way. */
+int sp_png_bytes_write(const unsigned char *p, size_t n, const char *path, sp_error *err);
 
 #endif

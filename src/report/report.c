@@ -25,6 +25,13 @@
 static const char *const site_colors[] = {"#0072b2", "#d55e00", "#009e73", "#cc79a7",
                                           "#e69f00", "#56b4e9", "#000000", "#999999"};
 
+size_t sp_report_thumb_row(size_t nrows, int k, int i)
+{
+    if (k <= 1 || nrows <= 1)
+        return 0;
+    return (size_t)((double)(nrows - 1) * i / (k - 1) + 0.5);
+}
+
 void sp_report_opts_default(sp_report_opts *o)
 {
     memset(o, 0, sizeof *o);
@@ -250,7 +257,8 @@ static void plot_hist(sp_sbuf *h, int *id, const sizes *s, int power, sp_report_
     snprintf(cap, sizeof cap,
              "%zu diameters (%s), 30 equal bins; moment-ratio means D[1,0], D[3,2], D[4,3] "
              "(ISO 9276-2) marked.",
-             s->n, s->per_track ? "one per track in focus, as in summary.json" : "one per non-edge detection");
+             s->n,
+             s->per_track ? "one per track in focus, as in summary.json" : "one per non-edge detection");
     fig_close(h, cap);
     if (res)
         res->plots++;
@@ -730,6 +738,40 @@ typedef struct thumbs {
     int n;
 } thumbs;
 
+/* Encode one drawn frame once: the PNG file under overlays/ and its data URI for the page. */
+static int emit_thumb(const char *dir, const sp_canvas *cv, int64_t idx, thumbs *th, sp_error *err)
+{
+    char path[4200];
+    unsigned char *png = NULL;
+    size_t np = 0;
+    snprintf(path, sizeof path, "%s/overlays/frame_%05lld.png", dir, (long long)idx);
+    int rc = sp_canvas_png(cv, &png, &np, path, err);
+    if (rc)
+        return rc;
+    sp_sbuf b64 = {0};
+    sp_sbuf_base64(&b64, png, np);
+    rc = sp_png_bytes_write(png, np, path, err);
+    free(png);
+    if (!rc && b64.failed)
+        rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", path);
+    if (rc) {
+        sp_sbuf_free(&b64);
+        return rc;
+    }
+    th->frame[th->n] = idx;
+    th->uri[th->n++] = b64.s;
+    return SP_OK;
+}
+
+/* The frame the caller already holds for index idx, or NULL. */
+static const sp_image *given_frame(const sp_report_opts *o, int64_t idx)
+{
+    for (int i = 0; i < o->ngiven; i++)
+        if (o->given_index[i] == idx && o->given_frames[i])
+            return o->given_frames[i];
+    return NULL;
+}
+
 static int make_overlays(rdata *r, const sp_report_opts *o, thumbs *th, sp_report_result *res, sp_error *err)
 {
     int rc = SP_OK;
@@ -772,6 +814,22 @@ static int make_overlays(rdata *r, const sp_report_opts *o, thumbs *th, sp_repor
         for (int i = 0; i < o->nframes && nwant < MAX_FRAMES_ASKED; i++)
             if (o->frames[i] >= 0)
                 want[nwant++] = o->frames[i];
+    } else if (r->has_frames && r->frames.found[F_FRAME] && r->frames.nrows > 0) {
+        /* Evenly over the frames analysed (frames.csv rows), empty ones included: a frame without
+         * bubbles is evidence too. */
+        int k = o->thumbnails > 0 ? o->thumbnails : 0;
+        if (k > MAX_FRAMES_ASKED)
+            k = MAX_FRAMES_ASKED;
+        size_t nr = r->frames.nrows;
+        for (int i = 0; i < k; i++) {
+            size_t row = sp_report_thumb_row(nr, k, i);
+            double fv = r->frames.col[F_FRAME][row];
+            if (!(fv >= 0 && fv < 1e15))
+                continue;
+            int64_t f = (int64_t)fv;
+            if (!nwant || f != want[nwant - 1])
+                want[nwant++] = f;
+        }
     } else {
         int64_t f0, f1;
         size_t nf;
@@ -786,6 +844,25 @@ static int make_overlays(rdata *r, const sp_report_opts *o, thumbs *th, sp_repor
         }
     }
     qsort(want, (size_t)nwant, sizeof want[0], cmp_i64);
+
+    /* Frames the caller kept in memory spare a second read of the recording. */
+    int covered = !o->video && nwant > 0;
+    for (int i = 0; covered && i < nwant; i++)
+        covered = given_frame(o, want[i]) != NULL;
+    if (covered) {
+        snprintf(path, sizeof path, "%s/overlays", r->dir);
+        if ((rc = sp_outdir_prepare(path, err)))
+            goto done;
+        for (int i = 0; i < nwant; i++) {
+            if ((rc = sp_canvas_from_image(&cv, given_frame(o, want[i]), err)))
+                goto done;
+            sp_overlay_draw(&od, want[i], &cv, &oo);
+            if ((rc = emit_thumb(r->dir, &cv, want[i], th, err)))
+                goto done;
+        }
+        res->overlays = th->n;
+        goto done;
+    }
 
     sp_source_opts so;
     sp_source_opts_default(&so);
@@ -840,27 +917,8 @@ static int make_overlays(rdata *r, const sp_report_opts *o, thumbs *th, sp_repor
             goto done;
         sp_overlay_draw(&od, idx, &cv, &oo);
         if (thumb) {
-            unsigned char *png = NULL;
-            size_t np = 0;
-            snprintf(path, sizeof path, "%s/overlays/frame_%05lld.png", r->dir, (long long)idx);
-            rc = sp_canvas_png(&cv, &png, &np, path, err);
-            if (rc)
+            if ((rc = emit_thumb(r->dir, &cv, idx, th, err)))
                 goto done;
-            sp_sbuf b64 = {0};
-            sp_sbuf_base64(&b64, png, np);
-            free(png);
-            if (b64.failed) {
-                sp_sbuf_free(&b64);
-                rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", path);
-                goto done;
-            }
-            rc = sp_canvas_png_write(&cv, path, err);
-            if (rc) {
-                sp_sbuf_free(&b64);
-                goto done;
-            }
-            th->frame[th->n] = idx;
-            th->uri[th->n++] = b64.s;
             wi++;
         }
         if (vw) {

@@ -31,9 +31,18 @@ typedef struct sp_report_opts {
     int trail;                /* frames of trail behind each bubble (default 20) */
     double focus_contrast;    /* contrast below which a bubble is drawn out of focus (default 0.3) */
     sp_report_result *result; /* filled when non-NULL */
+    /* Frames already in memory (measure keeps the ones it expects to be drawn): used instead of
+     * reading the recording again when they hold every frame to draw and no video is asked. */
+    const sp_image *const *given_frames;
+    const int64_t *given_index;
+    int ngiven;
 } sp_report_opts;
 
 void sp_report_opts_default(sp_report_opts *o);
+
+/* Row (0-based, of nrows analysed frames) of thumbnail i of k drawn by default: the rows are spread
+ * evenly from the first to the last. */
+size_t sp_report_thumb_row(size_t nrows, int k, int i);
 
 /* Build the report of DIR. The recording missing or unreadable is not an error unless overlays were
  * asked for explicitly (frames or video): the report then says why it has no thumbnails. Overlay
