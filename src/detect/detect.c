@@ -36,6 +36,8 @@ sp_detector *sp_detector_new(void)
     if (!d)
         return NULL;
     d->lb = sp_labeler_new();
+    if (d->lb)
+        sp_labeler_set_sparse(d->lb, 1);
     d->fl = sp_filler_new();
     d->ms = sp_measurer_new();
     if (!d->lb || !d->fl || !d->ms) {

@@ -49,7 +49,16 @@ struct sp_labeler {
     size_t cap_offset;
     sp_component *comps;
     size_t cap_comps;
+    int sparse;           /* see sp_labeler_set_sparse */
+    int32_t *last_labels; /* buffer of the last successful call, whose runs are still in strips */
+    int last_w, last_h, last_ns;
 };
+
+void sp_labeler_set_sparse(sp_labeler *lb, int on)
+{
+    lb->sparse = on;
+    lb->last_labels = NULL;
+}
 
 sp_labeler *sp_labeler_new(void)
 {
@@ -185,11 +194,22 @@ static int scan_strip(strip *s, const uint8_t *mask, ptrdiff_t mstride, int w)
     return 0;
 }
 
-static void write_strip(const strip *s, const int32_t *final, size_t off, int w, int32_t *labels)
+/* Zero the runs the strip wrote on the previous call. */
+static void clear_strip(const strip *s, int w, int32_t *labels)
 {
     for (int r = 0; r < s->y1 - s->y0; r++) {
         int32_t *out = labels + (size_t)(s->y0 + r) * (size_t)w;
-        memset(out, 0, (size_t)w * sizeof *out);
+        for (uint32_t i = s->row_start[r]; i < s->row_start[r + 1]; i++)
+            memset(out + s->runs[i].x0, 0, (size_t)(s->runs[i].x1 - s->runs[i].x0 + 1) * sizeof *out);
+    }
+}
+
+static void write_strip(const strip *s, const int32_t *final, size_t off, int w, int32_t *labels, int clear)
+{
+    for (int r = 0; r < s->y1 - s->y0; r++) {
+        int32_t *out = labels + (size_t)(s->y0 + r) * (size_t)w;
+        if (clear)
+            memset(out, 0, (size_t)w * sizeof *out);
         for (uint32_t i = s->row_start[r]; i < s->row_start[r + 1]; i++) {
             const run *q = &s->runs[i];
             int32_t v = final[off + (size_t)q->label];
@@ -227,6 +247,19 @@ int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, 
         return rc;
     if (mstride < w)
         return sp_error_set(err, SP_ERR_INTERNAL, "label: mask stride %td is below the width %d", mstride, w);
+
+    /* Sparse mode: undo the previous call's runs while they are still in the strips, or start from
+     * a zeroed buffer. Until this call succeeds, the buffer's state is unknown. */
+    int clear_rows = 1;
+    if (lb->sparse) {
+        if (lb->last_labels == labels && lb->last_w == w && lb->last_h == h)
+            for (int i = 0; i < lb->last_ns; i++)
+                clear_strip(&lb->strips[i], w, labels);
+        else
+            memset(labels, 0, (size_t)w * (size_t)h * sizeof *labels);
+        lb->last_labels = NULL;
+        clear_rows = 0;
+    }
 
     int nt = nthreads > 0 ? nthreads : omp_get_max_threads();
     int ns = nt < h ? nt : h;
@@ -307,7 +340,7 @@ int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, 
     /* Second scan: labels image in parallel; statistics per run (closed forms over a run). */
 #pragma omp parallel for num_threads(ns) schedule(static, 1)
     for (int i = 0; i < ns; i++)
-        write_strip(&lb->strips[i], lb->final, lb->offset[i], w, labels);
+        write_strip(&lb->strips[i], lb->final, lb->offset[i], w, labels, clear_rows);
     for (int i = 0; i < ns; i++) {
         const strip *s = &lb->strips[i];
         for (int r = 0; r < s->y1 - s->y0; r++) {
@@ -347,6 +380,12 @@ int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, 
     }
     *comps = lb->comps;
     *n = count;
+    if (lb->sparse) {
+        lb->last_labels = labels;
+        lb->last_w = w;
+        lb->last_h = h;
+        lb->last_ns = ns;
+    }
     return SP_OK;
 
 fail:

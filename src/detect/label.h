@@ -34,4 +34,10 @@ void sp_labeler_free(sp_labeler *lb);
 int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, int h, int32_t *labels,
                  const sp_component **comps, int *n, int nthreads, sp_error *err);
 
+/* Sparse writing (off by default): the labeller then clears only the runs it wrote into the same
+ * labels buffer (same size) on its previous call, and writes only the new runs, instead of writing
+ * every pixel: the result is the same as long as nobody else writes into that buffer between calls.
+ * A frame is mostly background, so this spares a store per pixel. */
+void sp_labeler_set_sparse(sp_labeler *lb, int on);
+
 #endif
