@@ -1,52 +1,57 @@
 /* Flat-field normalisation: transmission = frame / (gain · background). */
 #include "detect/normalise.h"
 
+#include <math.h>
 #include <string.h>
 
 #define GAIN_BINS 2048 /* ratio resolution 1/1024 over [0, 2) */
 #define GAIN_GRID 4    /* every 4th pixel of every 4th row */
 
-static float median_ratio(const sp_image *f, const float *bg, float lo, float hi)
+/* Median of the histogram's bins [k0, k1] (their centres), or 0 when they hold fewer than 16. */
+static float hist_median(const uint32_t *hist, int k0, int k1)
 {
+    uint64_t total = 0;
+    for (int k = k0; k <= k1; k++)
+        total += hist[k];
+    if (total < 16)
+        return 0.f;
+    uint64_t half = (total + 1) / 2, acc = 0;
+    for (int k = k0; k <= k1; k++) {
+        acc += hist[k];
+        if (acc >= half)
+            return (k + 0.5f) / (GAIN_BINS / 2);
+    }
+    return 0.f;
+}
+
+float sp_norm_gain(const sp_image *f, const float *bg)
+{
+    /* One histogram of frame / background on a grid of pixels, then two medians: over a wide window
+     * first, then over ±30% around it, which drops bubbles and dust. */
     static const int nb = GAIN_BINS;
     uint32_t hist[GAIN_BINS];
     memset(hist, 0, sizeof hist);
-    uint64_t total = 0;
     const int w = f->width;
     for (int y = GAIN_GRID / 2; y < f->height; y += GAIN_GRID) {
         const float *b = bg + (size_t)y * (size_t)w;
         for (int x = GAIN_GRID / 2; x < w; x += GAIN_GRID) {
             float raw = f->bytes == 1 ? sp_row8(f, y)[x] : sp_row16(f, y)[x];
-            if (!(b[x] > 0.f))
+            if (!(b[x] > 0.f) || raw >= 2.f * b[x])
                 continue;
-            float r = raw / b[x];
-            if (r < lo || r > hi)
-                continue;
-            int k = (int)(r * (nb / 2));
-            if (k >= nb)
-                k = nb - 1;
-            hist[k]++;
-            total++;
+            int k = (int)(raw / b[x] * (nb / 2));
+            hist[k < nb ? k : nb - 1]++;
         }
     }
-    if (total < 16)
-        return 0.f;
-    uint64_t half = (total + 1) / 2, acc = 0;
-    for (int k = 0; k < nb; k++) {
-        acc += hist[k];
-        if (acc >= half)
-            return (k + 0.5f) / (nb / 2);
-    }
-    return 0.f;
-}
-
-float sp_norm_gain(const sp_image *frame, const float *bg)
-{
-    /* Two rounds: a wide window first, then ±30% around it, which drops bubbles and dust. */
-    float g = median_ratio(frame, bg, 0.5f, 1.999f);
+    /* Bins whose centre lies in [0.5, 2) for the first median, then within ±30% of it. */
+    float g = hist_median(hist, nb / 4, nb - 1);
     if (g <= 0.f)
         return 1.f;
-    float g2 = median_ratio(frame, bg, g * 0.7f, g * 1.3f);
+    int k0 = (int)ceilf(0.7f * g * (nb / 2) - 0.5f), k1 = (int)floorf(1.3f * g * (nb / 2) - 0.5f);
+    if (k0 < 0)
+        k0 = 0;
+    if (k1 > nb - 1)
+        k1 = nb - 1;
+    float g2 = hist_median(hist, k0, k1);
     return g2 > 0.f ? g2 : g;
 }
 
