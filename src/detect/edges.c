@@ -6,6 +6,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+static const int dir4[4][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1}};
+
 /* Grow a buffer to hold `need` elements of `size` bytes (contents kept, amortised growth). */
 static int reserve(void **p, size_t *cap, size_t need, size_t size, sp_error *err)
 {
@@ -28,6 +30,7 @@ void sp_edges_release(sp_edges *e)
         return;
     free(e->ext);
     free(e->stack);
+    free(e->opair);
     free(e->vals);
     free(e->xy);
     free(e->wid);
@@ -54,6 +57,8 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
     e->ww = c->x1 - c->x0 + 3;
     e->wh = c->y1 - c->y0 + 3;
     size_t nw = (size_t)e->ww * (size_t)e->wh;
+    if (nw > UINT32_MAX >> 2)
+        return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d window too large", label);
     int rc = reserve((void **)&e->ext, &e->ext_cap, nw, 1, err);
     if (!rc)
         rc = reserve((void **)&e->stack, &e->stack_cap, nw, sizeof(int32_t), err);
@@ -89,7 +94,38 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
             }
         }
     }
+    /* The outline pairs, listed once for the stages that walk them: a component pixel and its
+     * 4-neighbour in the exterior and inside the frame (the window's padding holds every neighbour). */
+    e->nopair = 0;
+    for (int wy = 1; wy < e->wh - 1; wy++)
+        for (int wx = 1; wx < e->ww - 1; wx++) {
+            size_t i = (size_t)wy * e->ww + wx;
+            if (e->ext[i] != 0)
+                continue;
+            int x = e->wx0 + wx, y = e->wy0 + wy;
+            for (int d = 0; d < 4; d++) {
+                int xx = x + dir4[d][0], yy = y + dir4[d][1];
+                if (xx < 0 || yy < 0 || xx >= w || yy >= h ||
+                    e->ext[(size_t)(wy + dir4[d][1]) * e->ww + (size_t)(wx + dir4[d][0])] != 2)
+                    continue;
+                if ((rc = reserve((void **)&e->opair, &e->opair_cap, e->nopair + 1, sizeof(uint32_t), err)))
+                    return rc;
+                e->opair[e->nopair++] = (uint32_t)(i << 2 | (size_t)d);
+            }
+        }
     return SP_OK;
+}
+
+/* Pixel (x, y) and direction (dx, dy) of outline pair k. */
+static inline void opair_at(const sp_edges *e, size_t k, int *x, int *y, int *dx, int *dy)
+{
+    uint32_t p = e->opair[k];
+    size_t i = p >> 2;
+    int d = (int)(p & 3);
+    *x = e->wx0 + (int)(i % (size_t)e->ww);
+    *y = e->wy0 + (int)(i / (size_t)e->ww);
+    *dx = dir4[d][0];
+    *dy = dir4[d][1];
 }
 
 static inline int ext_at(const sp_edges *e, int x, int y)
@@ -139,8 +175,6 @@ static float quantile(float *v, size_t n, double q)
     return v[k];
 }
 
-static const int dir4[4][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1}};
-
 int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, sp_error *err)
 {
@@ -153,7 +187,7 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     float nmin = 1e30f;
     for (int y = c->y0; y <= c->y1; y++)
         for (int x = c->x0; x <= c->x1; x++)
-            if (labels[(size_t)y * w + x] == label && nv < e->vals_cap) {
+            if (e->ext[(size_t)(y - e->wy0) * e->ww + (size_t)(x - e->wx0)] == 0 && nv < e->vals_cap) {
                 float t = sp_view_norm(v, x, y);
                 e->vals[nv++] = t;
                 if (t < nmin)
@@ -165,25 +199,18 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     e->n_dark = quantile(e->vals, nv, 0.2);
 
     nv = 0;
-    for (int y = c->y0; y <= c->y1; y++)
-        for (int x = c->x0; x <= c->x1; x++) {
-            if (labels[(size_t)y * w + x] != label)
-                continue;
-            for (int d = 0; d < 4; d++) {
-                int dx = dir4[d][0], dy = dir4[d][1];
-                if (ext_at(e, x + dx, y + dy) != 2 || lab_at(labels, w, h, x + dx, y + dy) < 0)
-                    continue;
-                for (int k = 3; k <= 10; k++) {
-                    int xx = x + k * dx, yy = y + k * dy;
-                    if (lab_at(labels, w, h, xx, yy) != 0)
-                        break; /* left the frame or met another bubble */
-                    rc = reserve((void **)&e->vals, &e->vals_cap, nv + 1, sizeof(float), err);
-                    if (rc)
-                        return rc;
-                    e->vals[nv++] = sp_view_norm(v, xx, yy);
-                }
-            }
+    if ((rc = reserve((void **)&e->vals, &e->vals_cap, 8 * e->nopair, sizeof(float), err)))
+        return rc;
+    for (size_t q = 0; q < e->nopair; q++) {
+        int x, y, dx, dy;
+        opair_at(e, q, &x, &y, &dx, &dy);
+        for (int k = 3; k <= 10; k++) {
+            int xx = x + k * dx, yy = y + k * dy;
+            if (lab_at(labels, w, h, xx, yy) != 0)
+                break; /* left the frame or met another bubble */
+            e->vals[nv++] = sp_view_norm(v, xx, yy);
         }
+    }
     /* No visible surroundings: the background model's own light level. */
     e->n_light = nv ? quantile(e->vals, nv, 0.5) : 1.0f;
     return SP_OK;
@@ -225,21 +252,6 @@ static void profile(const sp_frame_view *v, int x, int y, int dx, int dy, double
         s[k + 3] = (xx < 0 || yy < 0 || xx >= w || yy >= h) ? NAN : (double)sp_view_norm(v, xx, yy);
     }
 }
-
-/* Calls fn(ctx, x, y, dx, dy) for every outline pair: (x, y) in the component, its 4-neighbour in
- * the exterior and inside the frame. */
-#define FOR_OUTLINE_PAIRS(e, labels, w, h, label, c, BODY)                                                   \
-    for (int y = (c)->y0; y <= (c)->y1; y++)                                                                 \
-        for (int x = (c)->x0; x <= (c)->x1; x++) {                                                           \
-            if ((labels)[(size_t)y * (w) + x] != (label))                                                    \
-                continue;                                                                                    \
-            for (int d = 0; d < 4; d++) {                                                                    \
-                int dx = dir4[d][0], dy = dir4[d][1];                                                        \
-                if (ext_at((e), x + dx, y + dy) != 2 || lab_at((labels), (w), (h), x + dx, y + dy) < 0)      \
-                    continue;                                                                                \
-                BODY                                                                                         \
-            }                                                                                                \
-        }
 
 /* Nearest upward crossing of `level` at or beyond position t0 (outward) or before it (inward). */
 static double crossing_near(const double s[8], double level, double t0)
@@ -290,7 +302,9 @@ static int pair_point(const sp_frame_view *v, int x, int y, int dx, int dy, doub
 int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, double frac, sp_error *err)
 {
-    int w = v->frame->width, h = v->frame->height;
+    (void)labels; /* the outline pairs were listed by sp_edges_exterior */
+    (void)label;
+    (void)c;
     const double light = e->n_light, step = light - e->n_dark;
     const double glevel = e->n_dark + frac * step;
     int rc;
@@ -299,7 +313,9 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     /* The crossing of edge_level of the local step, from the transmission SP_EDGE_INSET_PX inside
      * the crossing of the component-wide level to the light. */
     size_t nin_n = 0;
-    FOR_OUTLINE_PAIRS(e, labels, w, h, label, c, {
+    for (size_t q = 0; q < e->nopair; q++) {
+        int x, y, dx, dy;
+        opair_at(e, q, &x, &y, &dx, &dy);
         double t;
         double nin;
         double wd;
@@ -327,7 +343,7 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
         e->pdir[2 * e->n] = (int8_t)dx;
         e->pdir[2 * e->n + 1] = (int8_t)dy;
         e->n++;
-    })
+    }
     /* Median inner level of the local steps, for the partial-coverage area. */
     e->n_step_in = nin_n ? quantile(e->vals, nin_n, 0.5) : e->n_dark;
     return SP_OK;

@@ -43,6 +43,8 @@ typedef struct sp_edges {
     size_t ext_cap;
     int32_t *stack;
     size_t stack_cap;
+    uint32_t *opair; /* outline pairs in raster order, direction order: window index << 2 | direction */
+    size_t opair_cap, nopair;
     float *vals; /* scratch samples for percentiles */
     size_t vals_cap;
     double *xy; /* sub-pixel outline points, n pairs */
