@@ -14,6 +14,7 @@
 
 #include <math.h>
 #include <omp.h>
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -539,6 +540,62 @@ static int slot_store(slot *sl, const sp_detect_result *r)
     return 0;
 }
 
+/* Decoding runs one batch ahead of the analysis, on a thread of its own: while the workers measure
+ * batch k, the decoder fills batch k + 1 (the decoder's own frame or slice threads come on top). */
+typedef struct fbatch {
+    slot *slots;
+    int n;   /* frames read */
+    int end; /* the source is exhausted */
+    int rc;
+    sp_error err;
+} fbatch;
+
+typedef struct producer {
+    sp_source *src;
+    fbatch *b;
+    int cap;
+    pthread_t th;
+    int running;
+} producer;
+
+static void *fill_batch(void *arg)
+{
+    producer *p = arg;
+    fbatch *b = p->b;
+    b->n = 0;
+    b->end = 0;
+    b->rc = SP_OK;
+    sp_error_clear(&b->err);
+    while (b->n < p->cap) {
+        int got = 0;
+        slot *sl = &b->slots[b->n];
+        if ((b->rc = sp_source_next(p->src, &sl->img, &sl->index, &sl->t, &got, &b->err)))
+            break;
+        if (!got) {
+            b->end = 1;
+            break;
+        }
+        b->n++;
+    }
+    return NULL;
+}
+
+/* Start filling b; without a thread, fill it here. */
+static void producer_start(producer *p, fbatch *b)
+{
+    p->b = b;
+    p->running = pthread_create(&p->th, NULL, fill_batch, p) == 0;
+    if (!p->running)
+        fill_batch(p);
+}
+
+static void producer_wait(producer *p)
+{
+    if (p->running)
+        pthread_join(p->th, NULL);
+    p->running = 0;
+}
+
 int sp_measure(const char *input, const char *outdir, const sp_measure_settings *settings,
                sp_measure_report *rep, sp_error *err)
 {
@@ -563,6 +620,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     sp_detector **det = NULL;
     float **bgbuf = NULL;
     totals tot = {0};
+    producer prod = {0};
     sp_image keep_img[KEEP_MAX] = {{0}};
     int64_t keep_pos[KEEP_MAX], keep_idx[KEEP_MAX];
     int nkeep = 0;
@@ -607,7 +665,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     dopt.measure.min_sharpness = s->min_sharpness;
     dopt.measure.split = s->split;
 
-    slots = calloc((size_t)batch, sizeof *slots);
+    slots = calloc(2 * (size_t)batch, sizeof *slots);
     det = calloc((size_t)nthreads, sizeof *det);
     bgbuf = calloc((size_t)nthreads, sizeof *bgbuf);
     if (!slots || !det || !bgbuf) {
@@ -660,21 +718,28 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
 
     double t0 = now_s();
     int64_t pos = 0;
+    fbatch bt[2] = {{slots, 0, 0, 0, {0}}, {slots + batch, 0, 0, 0, {0}}};
+    int cur = 0;
+    prod.src = src;
+    prod.cap = batch;
+    producer_start(&prod, &bt[0]);
     for (;;) {
+        producer_wait(&prod);
+        if (bt[cur].rc) {
+            rc = bt[cur].rc;
+            *err = bt[cur].err;
+            goto done;
+        }
         if (s->stop && *s->stop) {
             tot.stopped = 1;
             break;
         }
-        int nb = 0, got = 1;
-        while (nb < batch) {
-            if ((rc = sp_source_next(src, &slots[nb].img, &slots[nb].index, &slots[nb].t, &got, err)))
-                goto done;
-            if (!got)
-                break;
-            nb++;
-        }
+        slot *slots = bt[cur].slots;
+        int nb = bt[cur].n;
         if (nb == 0)
             break;
+        if (!bt[cur].end)
+            producer_start(&prod, &bt[1 - cur]);
 #pragma omp parallel for num_threads(nthreads) schedule(dynamic, 1)
         for (int k = 0; k < nb; k++) {
             int tid = omp_get_thread_num();
@@ -733,7 +798,11 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
             sp_progress p = {"detect", pos, info->frames_selected, now_s() - t0};
             s->progress(s->progress_ud, &p);
         }
+        if (bt[cur].end)
+            break;
+        cur = 1 - cur;
     }
+    producer_wait(&prod);
     if (tot.frames == 0) {
         rc = tot.stopped
                  ? sp_error_set(err, SP_ERR_INPUT,
@@ -803,8 +872,9 @@ done:
     sp_outfile_abort(&ot);
     sp_outfile_abort(&oz);
     sp_trackrun_free(tr);
+    producer_wait(&prod); /* an error path may leave the decoder filling the other batch */
     if (slots)
-        for (int k = 0; k < batch; k++) {
+        for (int k = 0; k < 2 * batch; k++) {
             sp_image_free(&slots[k].img);
             free(slots[k].bub);
             free(slots[k].ids);
