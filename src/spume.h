@@ -78,6 +78,9 @@ typedef struct sp_source_opts {
     int64_t count; /* at most this many frames, 0 = all (default 0) */
     int64_t step;  /* deliver every step-th frame (default 1) */
     sp_roi roi;    /* crop applied to every delivered frame (default: whole frame) */
+    int sparse;    /* most frames will be passed over with sp_source_skip: a video whose codec codes
+                      every frame on its own is then decoded without frame threads, so that a frame
+                      passed over is not decoded at all (default 0) */
 } sp_source_opts;
 
 void sp_source_opts_default(sp_source_opts *o);
@@ -103,6 +106,19 @@ const sp_source_info *sp_source_get_info(const sp_source *s);
  * sp_image_free). *got = 0 at the end of the selection. *index is the frame number in the
  * recording (0 = first decoded frame), *t_s its time in seconds from the first decoded frame. */
 int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int *got, sp_error *err);
+/* Pass over the next selected frame as sp_source_next would deliver it (same *index, *got), without
+ * producing its pixels and, where the format allows, without decoding it. */
+int sp_source_skip(sp_source *s, int64_t *index, int *got, sp_error *err);
+/* Receives each frame read by sp_source_sample: the image (cropped to the region of interest, valid
+ * during the call), its position in the selection (0-based) and the target it stands for. */
+typedef int (*sp_source_sample_fn)(void *ud, const sp_image *img, int64_t pos, int target, sp_error *err);
+/* Read frames near n target positions of the selection (ascending, 0-based) from a video whose
+ * codec codes some frames on their own (keyframes) between others that depend on them: the nearest
+ * keyframe to each target, each decoded on its own, nothing else decoded. *done = 0 without an error
+ * when that does not apply (still frames, codecs whose every frame stands alone, a selection with
+ * a step, fewer than min_keys keyframes in the selection, no timestamps): read in order instead. */
+int sp_source_sample(sp_source *s, const int64_t *pos, int n, int min_keys, sp_source_sample_fn fn, void *ud,
+                     int *done, sp_error *err);
 void sp_source_close(sp_source *s);
 
 /* ---------------------------------------------------------------- the measure job */

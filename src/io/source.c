@@ -130,7 +130,7 @@ int sp_source_open(sp_source **out, const char *path, const sp_source_opts *opts
     if (kind >= 0)
         rc = sp_stills_open(&s->stills, path, kind, &s->info, err);
     else
-        rc = sp_video_open(&s->video, path, &s->info, err);
+        rc = sp_video_open(&s->video, path, o.sparse, &s->info, err);
     if (rc)
         goto fail;
 
@@ -196,7 +196,7 @@ int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int
         double t = 0;
         int g = 0, rc;
         if (s->video)
-            rc = sp_video_next(s->video, want, &s->full, &t, &g, err);
+            rc = want ? sp_video_next(s->video, 1, &s->full, &t, &g, err) : sp_video_skip(s->video, &g, err);
         else
             rc = sp_stills_next(s->stills, want, &s->full, &g, err);
         if (rc) {
@@ -222,6 +222,78 @@ int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int
         *got = 1;
         return SP_OK;
     }
+}
+
+int sp_source_skip(sp_source *s, int64_t *index, int *got, sp_error *err)
+{
+    *got = 0;
+    if (s->failed)
+        return sp_error_set(err, SP_ERR_INTERNAL, "%s: source read again after an error", s->path);
+    const sp_source_opts *o = &s->opts;
+    for (;;) {
+        if (o->count > 0 && s->delivered >= o->count)
+            return SP_OK;
+        int64_t idx = s->next_index;
+        int want = idx >= o->start && (idx - o->start) % o->step == 0;
+        int g = 0, rc;
+        if (s->video)
+            rc = sp_video_skip(s->video, &g, err);
+        else
+            rc = sp_stills_next(s->stills, 0, &s->full, &g, err);
+        if (rc) {
+            s->failed = 1;
+            return rc;
+        }
+        if (!g)
+            return SP_OK;
+        s->next_index++;
+        if (!want)
+            continue;
+        s->delivered++;
+        *index = idx;
+        *got = 1;
+        return SP_OK;
+    }
+}
+
+typedef struct sample_ctx {
+    sp_source *s;
+    sp_source_sample_fn fn;
+    void *ud;
+    sp_image img;
+} sample_ctx;
+
+static int sample_one(void *ud, const sp_image *full, int64_t index, int target, sp_error *err)
+{
+    sample_ctx *c = ud;
+    const sp_source *s = c->s;
+    if (full->width != s->info.full_width || full->height != s->info.full_height ||
+        full->bytes != s->info.bytes)
+        return sp_error_set(err, SP_ERR_INPUT,
+                            "%s: keyframe %lld is %dx%d at %d bits, the video %dx%d at %d bits", s->path,
+                            (long long)index, full->width, full->height, 8 * full->bytes, s->info.full_width,
+                            s->info.full_height, 8 * s->info.bytes);
+    int rc = crop(full, &s->opts.roi, &c->img, err);
+    return rc ? rc : c->fn(c->ud, &c->img, index - s->opts.start, target, err);
+}
+
+int sp_source_sample(sp_source *s, const int64_t *pos, int n, int min_keys, sp_source_sample_fn fn, void *ud,
+                     int *done, sp_error *err)
+{
+    *done = 0;
+    if (!s->video || s->opts.step != 1 || s->info.frames_selected <= 0 || n < 1 || n > 1000000)
+        return SP_OK;
+    int64_t *target = malloc((size_t)n * sizeof *target);
+    if (!target)
+        return sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", s->path);
+    for (int j = 0; j < n; j++)
+        target[j] = s->opts.start + pos[j];
+    sample_ctx c = {s, fn, ud, {0}};
+    int rc = sp_video_sample_keys(s->path, target, n, s->opts.start, s->opts.start + s->info.frames_selected,
+                                  min_keys, sample_one, &c, done, err);
+    free(target);
+    sp_image_free(&c.img);
+    return rc;
 }
 
 void sp_source_close(sp_source *s)

@@ -45,11 +45,22 @@ void sp_frameconv_free(sp_frameconv *c);
 /* ---- video back end (video.c). Opening decodes the first frame to learn the real frame format. */
 typedef struct sp_video sp_video;
 /* Fills info->full_width/full_height/bytes/bits/fps/frames_total/format. */
-int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_error *err);
+int sp_video_open(sp_video **out, const char *path, int sparse, sp_source_info *info, sp_error *err);
 /* Next frame of the recording. want == 0: the frame is decoded (as it must be) but not converted.
  * *t_s: best-effort timestamp relative to the first decoded frame. *got = 0 at the end. */
 int sp_video_next(sp_video *v, int want, sp_image *full, double *t_s, int *got, sp_error *err);
+/* Pass over the next frame: its packet is dropped undecoded when the video was opened sparse and its
+ * codec codes every frame on its own; otherwise as sp_video_next with want == 0. */
+int sp_video_skip(sp_video *v, int *got, sp_error *err);
 void sp_video_close(sp_video *v);
+/* Called with each sampled frame (full size, converted to grey), its position and its target. */
+typedef int (*sp_video_key_fn)(void *ud, const sp_image *full, int64_t index, int target, sp_error *err);
+/* For each of ntarget positions (ascending), decode the nearest unused keyframe at a position in
+ * [lo, hi) on its own, without decoding any other frame. *done = 0 (and SP_OK) when that cannot be
+ * done: fewer than min_keys keyframes in [lo, hi), packets without timestamps, an unreadable file;
+ * the caller then reads the frames in order. */
+int sp_video_sample_keys(const char *path, const int64_t *target, int ntarget, int64_t lo, int64_t hi,
+                         int min_keys, sp_video_key_fn fn, void *ud, int *done, sp_error *err);
 
 /* ---- still frames (stills.c). */
 enum { SP_STILLS_DIR, SP_STILLS_PATTERN, SP_STILLS_SINGLE };

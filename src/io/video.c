@@ -182,6 +182,7 @@ struct sp_video {
     int64_t by_length;  /* frames implied by the announced duration at a constant rate, -1 if unknown */
     int pending;        /* frame holds a decoded frame not yet delivered */
     int flushing, done; /* end of file reached / decoder drained */
+    int skippable;      /* opened sparse, intra-only codec, no frame threads: packets may be dropped */
     int width, height, bytes;
 };
 
@@ -278,7 +279,7 @@ static double q2d_or0(AVRational r)
     return (r.num > 0 && r.den > 0) ? av_q2d(r) : 0.0;
 }
 
-int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_error *err)
+int sp_video_open(sp_video **out, const char *path, int sparse, sp_source_info *info, sp_error *err)
 {
     char eb[128];
     int rc = SP_OK;
@@ -329,6 +330,13 @@ int sp_video_open(sp_video **out, const char *path, sp_source_info *info, sp_err
     /* Frame or slice threading; frames still come out in order, so results do not depend on it. */
     v->dec->thread_count = 0;
     v->dec->thread_type = FF_THREAD_FRAME | FF_THREAD_SLICE;
+    /* Sparse reading of a codec whose every frame stands alone: without frame threads each packet
+     * gives its frame at once, so a packet not wanted can be dropped without decoding it. */
+    const AVCodecDescriptor *desc = avcodec_descriptor_get(st->codecpar->codec_id);
+    if (sparse && desc && (desc->props & AV_CODEC_PROP_INTRA_ONLY) && st->codecpar->video_delay == 0) {
+        v->dec->thread_type = FF_THREAD_SLICE;
+        v->skippable = 1;
+    }
     ret = avcodec_open2(v->dec, codec, NULL);
     if (ret < 0) {
         rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot open the %s decoder (%s)", path, codec->name,
@@ -423,6 +431,30 @@ int sp_video_next(sp_video *v, int want, sp_image *full, double *t_s, int *got, 
     return SP_OK;
 }
 
+int sp_video_skip(sp_video *v, int *got, sp_error *err)
+{
+    char eb[128];
+    double t;
+    *got = 0;
+    if (!v->skippable || v->pending || v->flushing || v->done)
+        return sp_video_next(v, 0, NULL, &t, got, err);
+    for (;;) {
+        int ret = av_read_frame(v->fmt, v->pkt);
+        if (ret == AVERROR_EOF)
+            return sp_video_next(v, 0, NULL, &t, got, err); /* drains, checks the announced length */
+        if (ret < 0)
+            return sp_error_set(err, SP_ERR_INPUT, "%s: cannot read the video after frame %lld (%s)", v->path,
+                                (long long)v->decoded, sp_averr(ret, eb, sizeof eb));
+        int ours = v->pkt->stream_index == v->stream;
+        av_packet_unref(v->pkt);
+        if (!ours)
+            continue;
+        v->decoded++; /* one packet, one frame, for the intra-only codecs this path serves */
+        *got = 1;
+        return SP_OK;
+    }
+}
+
 void sp_video_close(sp_video *v)
 {
     if (!v)
@@ -434,4 +466,251 @@ void sp_video_close(sp_video *v)
     avformat_close_input(&v->fmt);
     free(v->path);
     free(v);
+}
+
+/* ---------------------------------------------------------------- frames that decode on their own */
+
+typedef struct keypkt {
+    int64_t index;     /* presentation position: rank of the packet's timestamp among all packets */
+    int64_t dts_order; /* position in the file's packet order */
+} keypkt;
+
+static int cmp_i64v(const void *a, const void *b)
+{
+    int64_t x = *(const int64_t *)a, y = *(const int64_t *)b;
+    return x < y ? -1 : x > y;
+}
+
+/* Keyframe sampling. One demux-only pass lists the stream's packets: their presentation positions
+ * (timestamps ranked; packets without a timestamp give up) and which are keyframes. For each target
+ * position, the nearest unused keyframe is chosen; a second demux pass decodes only the chosen
+ * packets, each on its own (decoder flushed, packet sent, drained), so the decoder never sees the
+ * frames between them. */
+int sp_video_sample_keys(const char *path, const int64_t *target, int ntarget, int64_t lo, int64_t hi,
+                         int min_keys, sp_video_key_fn fn, void *ud, int *done, sp_error *err)
+{
+    char eb[128];
+    int rc = SP_OK, ret;
+    AVFormatContext *fmt = NULL;
+    AVCodecContext *dec = NULL;
+    AVPacket *pkt = NULL;
+    AVFrame *frame = NULL;
+    sp_frameconv conv = {0};
+    sp_image full = {0};
+    int64_t *pts = NULL, *sorted = NULL, *chosen_order = NULL, *chosen_index = NULL;
+    keypkt *keys = NULL;
+    size_t npts = 0, cap = 0, nkeys = 0, kcap = 0;
+    *done = 0;
+    sp_ffmpeg_quiet();
+    if (ntarget < 1)
+        return SP_OK;
+    if (avformat_open_input(&fmt, path, NULL, NULL) < 0 || avformat_find_stream_info(fmt, NULL) < 0)
+        goto unsupported;
+    const AVCodec *codec = NULL;
+    int stream = av_find_best_stream(fmt, AVMEDIA_TYPE_VIDEO, -1, -1, &codec, 0);
+    if (stream < 0 || !codec)
+        goto unsupported;
+    /* Codecs whose every frame stands alone are better read in one pass, dropping packets. */
+    const AVCodecDescriptor *desc = avcodec_descriptor_get(fmt->streams[stream]->codecpar->codec_id);
+    if (desc && (desc->props & AV_CODEC_PROP_INTRA_ONLY))
+        goto unsupported;
+    if (!(pkt = av_packet_alloc()))
+        goto oom;
+    /* Pass 1: timestamps and key flags. */
+    for (;;) {
+        ret = av_read_frame(fmt, pkt);
+        if (ret == AVERROR_EOF)
+            break;
+        if (ret < 0 || (int64_t)npts >= COUNT_PACKETS_MAX)
+            goto unsupported;
+        if (pkt->stream_index != stream) {
+            av_packet_unref(pkt);
+            continue;
+        }
+        int64_t t = pkt->pts;
+        int key = (pkt->flags & AV_PKT_FLAG_KEY) != 0;
+        av_packet_unref(pkt);
+        if (t == AV_NOPTS_VALUE)
+            goto unsupported;
+        if (npts == cap) {
+            size_t nc = cap ? 2 * cap : 4096;
+            int64_t *q = realloc(pts, nc * sizeof *q);
+            if (!q)
+                goto oom;
+            pts = q;
+            cap = nc;
+        }
+        if (key) {
+            if (nkeys == kcap) {
+                size_t nc = kcap ? 2 * kcap : 256;
+                keypkt *q = realloc(keys, nc * sizeof *q);
+                if (!q)
+                    goto oom;
+                keys = q;
+                kcap = nc;
+            }
+            keys[nkeys].index = t; /* ranked below */
+            keys[nkeys].dts_order = (int64_t)npts;
+            nkeys++;
+        }
+        pts[npts++] = t;
+    }
+    if (npts == 0 || nkeys == 0)
+        goto unsupported;
+    if (!(sorted = malloc(npts * sizeof *sorted)))
+        goto oom;
+    memcpy(sorted, pts, npts * sizeof *sorted);
+    qsort(sorted, npts, sizeof *sorted, cmp_i64v);
+    for (size_t i = 1; i < npts; i++)
+        if (sorted[i] == sorted[i - 1])
+            goto unsupported; /* repeated timestamps: positions would be ambiguous */
+    size_t inrange = 0;
+    for (size_t k = 0; k < nkeys; k++) {
+        int64_t t = keys[k].index;
+        size_t a = 0, b = npts; /* rank of t */
+        while (a < b) {
+            size_t m = a + (b - a) / 2;
+            if (sorted[m] < t)
+                a = m + 1;
+            else
+                b = m;
+        }
+        keys[k].index = (int64_t)a;
+        inrange += keys[k].index >= lo && keys[k].index < hi;
+    }
+    if ((int)inrange < min_keys)
+        goto unsupported;
+
+    /* The nearest unused keyframe in [lo, hi) for each target (keys are in file order; positions of
+     * keyframes rise with it for the codecs met in practice, but nothing here relies on that). */
+    if (!(chosen_order = malloc((size_t)ntarget * sizeof *chosen_order)) ||
+        !(chosen_index = malloc((size_t)ntarget * sizeof *chosen_index)))
+        goto oom;
+    int nchosen = 0;
+    for (int j = 0; j < ntarget; j++) {
+        int64_t best = -1, bd = INT64_MAX, bo = -1;
+        for (size_t k = 0; k < nkeys; k++) {
+            int64_t ix = keys[k].index;
+            if (ix < lo || ix >= hi)
+                continue;
+            int64_t d = ix > target[j] ? ix - target[j] : target[j] - ix;
+            if (d < bd) {
+                int used = 0;
+                for (int q = 0; q < nchosen && !used; q++)
+                    used = chosen_index[q] == ix;
+                if (!used) {
+                    bd = d;
+                    best = ix;
+                    bo = keys[k].dts_order;
+                }
+            }
+        }
+        chosen_index[j] = best;
+        chosen_order[j] = bo;
+        if (best >= 0)
+            nchosen++;
+        else
+            chosen_index[j] = -1;
+    }
+    (void)nchosen;
+
+    /* Pass 2: decode the chosen packets only. */
+    avformat_close_input(&fmt);
+    if (avformat_open_input(&fmt, path, NULL, NULL) < 0 || avformat_find_stream_info(fmt, NULL) < 0)
+        goto unsupported;
+    AVStream *st = fmt->streams[stream];
+    if (!(dec = avcodec_alloc_context3(codec)) || !(frame = av_frame_alloc()))
+        goto oom;
+    if (avcodec_parameters_to_context(dec, st->codecpar) < 0)
+        goto oom;
+    dec->pkt_timebase = st->time_base;
+    dec->max_pixels = SP_MAX_PIXELS;
+    dec->thread_count = 0;
+    dec->thread_type = FF_THREAD_SLICE;
+    if ((ret = avcodec_open2(dec, codec, NULL)) < 0) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot open the %s decoder (%s)", path, codec->name,
+                          sp_averr(ret, eb, sizeof eb));
+        goto fail;
+    }
+    int64_t order = 0;
+    for (;;) {
+        ret = av_read_frame(fmt, pkt);
+        if (ret == AVERROR_EOF)
+            break;
+        if (ret < 0) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot read the video (%s)", path,
+                              sp_averr(ret, eb, sizeof eb));
+            goto fail;
+        }
+        if (pkt->stream_index != stream) {
+            av_packet_unref(pkt);
+            continue;
+        }
+        int j = -1;
+        for (int q = 0; q < ntarget && j < 0; q++)
+            if (chosen_order[q] == order)
+                j = q;
+        order++;
+        if (j < 0) {
+            av_packet_unref(pkt);
+            continue;
+        }
+        avcodec_flush_buffers(dec);
+        ret = avcodec_send_packet(dec, pkt);
+        av_packet_unref(pkt);
+        if (ret >= 0)
+            ret = avcodec_send_packet(dec, NULL);
+        if (ret < 0) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot decode keyframe %lld (%s)", path,
+                              (long long)chosen_index[j], sp_averr(ret, eb, sizeof eb));
+            goto fail;
+        }
+        int got = 0;
+        while ((ret = avcodec_receive_frame(dec, frame)) == 0) {
+            if (!got) {
+                if (frame->width != st->codecpar->width || frame->height != st->codecpar->height) {
+                    rc = sp_error_set(err, SP_ERR_INPUT, "%s: keyframe %lld is %dx%d, the stream %dx%d", path,
+                                      (long long)chosen_index[j], frame->width, frame->height,
+                                      st->codecpar->width, st->codecpar->height);
+                    goto fail;
+                }
+                if ((rc = sp_frameconv_run(&conv, frame, &full, path, err)) ||
+                    (rc = fn(ud, &full, chosen_index[j], j, err)))
+                    goto fail;
+                got = 1;
+            }
+            av_frame_unref(frame);
+        }
+        if (ret != AVERROR_EOF) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: cannot decode keyframe %lld (%s)", path,
+                              (long long)chosen_index[j], sp_averr(ret, eb, sizeof eb));
+            goto fail;
+        }
+        if (!got) {
+            rc = sp_error_set(err, SP_ERR_INPUT, "%s: keyframe %lld gives no picture on its own", path,
+                              (long long)chosen_index[j]);
+            goto fail;
+        }
+    }
+    *done = 1;
+    goto fail;
+oom:
+    rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory sampling keyframes", path);
+    goto fail;
+unsupported:
+    rc = SP_OK;
+    *done = 0;
+fail:
+    sp_image_free(&full);
+    sp_frameconv_free(&conv);
+    av_frame_free(&frame);
+    av_packet_free(&pkt);
+    avcodec_free_context(&dec);
+    avformat_close_input(&fmt);
+    free(pts);
+    free(sorted);
+    free(keys);
+    free(chosen_order);
+    free(chosen_index);
+    return rc;
 }

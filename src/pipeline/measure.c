@@ -131,6 +131,18 @@ done:
     return rc;
 }
 
+typedef struct key_ctx {
+    sp_bg_builder **bld;
+    int per;
+} key_ctx;
+
+static int key_add(void *ud, const sp_image *img, int64_t pos, int target, sp_error *err)
+{
+    (void)pos;
+    key_ctx *c = ud;
+    return sp_bg_builder_add(c->bld[target / c->per], img, err);
+}
+
 /* Per-pixel percentile over frames sampled evenly across the selection, in bg_segments
  * consecutive parts of the run (one estimate each, later interpolated in time). One sequential
  * read of the recording; only the sampled frames are kept. */
@@ -162,12 +174,35 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
     for (int k = 0; k < nseg; k++)
         if ((rc = sp_bg_builder_new(&bld[k], w, h, bytes, per, err)))
             goto done;
-    if ((rc = sp_source_open(&src, input, &s->source, err)))
+    sp_source_opts so = s->source;
+    so.sparse = 1; /* most frames are passed over */
+    if ((rc = sp_source_open(&src, input, &so, err)))
         goto done;
+
+    /* A video with keyframes between dependent frames: decode the keyframes nearest the sample
+     * positions and nothing else, when the selection holds at least one per sample. */
+    int keyed = 0;
+    if (sel > 0) {
+        int64_t *tpos = malloc(sizeof *tpos * (size_t)nseg * (size_t)per);
+        if (!tpos) {
+            rc = sp_error_set(err, SP_ERR_INTERNAL, "background: out of memory");
+            goto done;
+        }
+        for (int k = 0; k < nseg; k++) {
+            int64_t a = k * sel / nseg, len = (k + 1) * sel / nseg - a;
+            for (int j = 0; j < per; j++)
+                tpos[k * per + j] = a + (2 * (int64_t)j + 1) * len / (2 * per);
+        }
+        key_ctx kc = {bld, per};
+        rc = sp_source_sample(src, tpos, nseg * per, nseg * per, key_add, &kc, &keyed, err);
+        free(tpos);
+        if (rc)
+            goto done;
+    }
 
     double t0 = now_s();
     int64_t pos = 0;
-    int got = 1;
+    int got = !keyed;
     while (got) {
         int64_t idx;
         double t;
@@ -193,7 +228,8 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
                               "%s: interrupted while estimating the background; nothing written", input);
             goto done;
         }
-        if ((rc = sp_source_next(src, &img, &idx, &t, &got, err)))
+        if ((rc = take ? sp_source_next(src, &img, &idx, &t, &got, err)
+                       : sp_source_skip(src, &idx, &got, err)))
             goto done;
         if (!got)
             break;
@@ -222,7 +258,7 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         int64_t n = sel > 0 ? sel : seen;
         b->centre[k] = ((double)k + 0.5) * (double)n / nseg - 0.5;
     }
-    snprintf(b->mode, sizeof b->mode, "recording");
+    snprintf(b->mode, sizeof b->mode, keyed ? "recording keyframes" : "recording");
     b->samples = per;
 done:
     for (int k = 0; k < nseg; k++)

@@ -1,0 +1,150 @@
+#!/usr/bin/python3
+"""Sparse reading for the background estimate, against the ffprobe and ffmpeg programs.
+
+References:
+  - ffprobe -show_frames key_frame: every frame sp_source_sample reads from a video with keyframes
+    between dependent frames (FFV1 with a GOP, H.264 with B-frames) must be a keyframe by ffprobe,
+    the nearest unused one to its target position (positions counted in presentation order), and its
+    pixels must equal ffmpeg's decode of the whole file at that position (its luma plane, ffmpeg
+    -vf extractplanes=y).
+  - A long-GOP H.264 file with fewer keyframes than targets, a codec whose frames all stand alone
+    (MJPEG) and still frames are declined (done 0), so the caller reads in order.
+  - Reading in order with sp_source_skip for the frames passed over (rawvideo NUT, whose packets are
+    dropped undecoded; FFV1, decoded; a PNG directory, not read) gives the same positions and pixels
+    as ffmpeg's decode.
+Fixtures are a synthesised plume encoded at test time.
+"""
+import argparse
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+
+import numpy as np
+
+ap = argparse.ArgumentParser()
+ap.add_argument("--build", required=True)
+args = ap.parse_args()
+PROBE = os.path.join(args.build, "probe_io_sample")
+SPUME = os.path.join(args.build, "spume")
+failures = []
+checks = 0
+W, H, N = 160, 200, 90
+
+
+def check(cond, what):
+    global checks
+    checks += 1
+    if not cond:
+        failures.append(what)
+        print("FAIL:", what)
+
+
+def run(cmd):
+    return subprocess.run(cmd, check=True, capture_output=True)
+
+
+def ff_frames(path):
+    raw = run(["ffmpeg", "-nostdin", "-loglevel", "error", "-i", path, "-f", "rawvideo", "-fps_mode", "passthrough",
+               "-vf", "extractplanes=y", "-pix_fmt", "gray", "-"]).stdout
+    return np.frombuffer(raw, np.uint8).reshape(-1, H, W)
+
+
+def ff_keys(path):
+    out = run(["ffprobe", "-v", "error", "-select_streams", "v:0", "-show_entries", "frame=key_frame",
+               "-of", "csv=p=0", path]).stdout.decode().split()
+    return [i for i, k in enumerate(out) if k.strip().startswith("1")]
+
+
+def probe(path, n, mode, dump):
+    out = [l for l in run([PROBE, path, str(n), "--mode", mode, "--dump", dump]).stdout.decode().split("\n")
+           if l.strip()]
+    done = int([l for l in out if l.startswith("done")][0].split()[1])
+    rows = [tuple(map(int, l.split())) for l in out if not l.startswith("done")]
+    got = np.fromfile(dump, np.uint8).reshape(-1, H, W) if rows else None
+    return done, rows, got
+
+
+def nearest_unused(keys, targets, lo, hi):
+    used, out = set(), []
+    for t in targets:
+        best = None
+        for k in keys:
+            if lo <= k < hi and k not in used and (best is None or abs(k - t) < abs(best - t)):
+                best = k
+        out.append(best)
+        used.add(best)
+    return out
+
+
+work = tempfile.mkdtemp(prefix="spume-keys-")
+try:
+    scene = os.path.join(work, "scene")
+    run([SPUME, "synth", "plume", "--out", scene, "--size", f"{W}x{H}", "--frames", str(N), "--quiet"])
+    src = os.path.join(scene, "video.mkv")
+    enc = {
+        "ffv1-gop7.mkv": ["-c:v", "ffv1", "-g", "7", "-pix_fmt", "gray"],
+        "h264-bframes.mkv": ["-c:v", "libx264", "-pix_fmt", "yuv420p", "-bf", "2", "-x264-params",
+                             "keyint=9:min-keyint=9:scenecut=0"],
+        "h264-longgop.mkv": ["-c:v", "libx264", "-pix_fmt", "yuv420p", "-x264-params", "keyint=250"],
+        "mjpeg.avi": ["-c:v", "mjpeg", "-q:v", "3", "-pix_fmt", "yuvj420p"],
+        "raw.nut": ["-c:v", "rawvideo", "-pix_fmt", "gray", "-f", "nut"],
+    }
+    files = {}
+    for name, opts in enc.items():
+        files[name] = os.path.join(work, name)
+        run(["ffmpeg", "-nostdin", "-loglevel", "error", "-y", "-i", src, *opts, files[name]])
+    dump = os.path.join(work, "dump.raw")
+
+    n = 8
+    targets = [(2 * j + 1) * N // (2 * n) for j in range(n)]
+    for name in ("ffv1-gop7.mkv", "h264-bframes.mkv"):
+        ref = ff_frames(files[name])
+        keys = ff_keys(files[name])
+        done, rows, got = probe(files[name], n, "keys", dump)
+        check(done == 1, f"{name}: keyframe sampling applies ({len(keys)} keyframes)")
+        if done != 1:
+            continue
+        want = nearest_unused(keys, targets, 0, len(ref))
+        check([r[0] for r in rows] == sorted(want) or sorted(r[0] for r in rows) == sorted(want),
+              f"{name}: positions {[r[0] for r in rows]} are the nearest keyframes {want}")
+        for (pos, tgt), img in zip(rows, got):
+            check(pos in keys, f"{name}: position {pos} is a keyframe by ffprobe")
+            check(want[tgt] == pos, f"{name}: target {targets[tgt]} took keyframe {pos} (expected {want[tgt]})")
+            check(np.array_equal(img, ref[pos]), f"{name}: pixels of frame {pos} equal ffmpeg's decode")
+        print(f"{name}: {len(rows)} frames read at {[r[0] for r in rows]}, keyframes every "
+              f"{keys[1] - keys[0] if len(keys) > 1 else '-'}")
+
+    # A selection (start, count) and a region of interest: positions count from the start.
+    name, start, count = "ffv1-gop7.mkv", 10, 70
+    ref = ff_frames(files[name])
+    keys = ff_keys(files[name])
+    out = [l for l in run([PROBE, files[name], "4", "--start", str(start), "--count", str(count), "--roi",
+                           "10,20,50,40", "--dump", dump]).stdout.decode().split("\n") if l.strip()]
+    rows = [tuple(map(int, l.split())) for l in out if not l.startswith("done")]
+    got = np.fromfile(dump, np.uint8).reshape(-1, 40, 50)
+    want = nearest_unused(keys, [start + (2 * j + 1) * count // 8 for j in range(4)], start, start + count)
+    check("done 1" in out and [start + r[0] for r in rows] == want,
+          f"selection: positions {[r[0] for r in rows]} + {start} are the nearest keyframes {want}")
+    for (pos, _), img in zip(rows, got):
+        check(np.array_equal(img, ref[start + pos, 20:60, 10:60]), f"selection: crop of frame {start + pos}")
+
+    for name in ("h264-longgop.mkv", "mjpeg.avi", "raw.nut"):
+        done, rows, _ = probe(files[name], n, "keys", dump)
+        check(done == 0 and not rows, f"{name}: keyframe sampling declined (done {done})")
+    pngdir = os.path.join(scene, "frames")
+    out = run([PROBE, pngdir, str(n), "--mode", "keys", "--fps", "500"]).stdout.decode()
+    check("done 0" in out, "still frames: keyframe sampling declined")
+
+    for name in ("raw.nut", "ffv1-gop7.mkv", "mjpeg.avi"):
+        ref = ff_frames(files[name])
+        done, rows, got = probe(files[name], n, "skip", dump)
+        check([r[0] for r in rows] == targets, f"{name}: in-order reading with skips reaches {targets}")
+        for (pos, _), img in zip(rows, got):
+            check(np.array_equal(img, ref[pos]), f"{name}: pixels of frame {pos} after skipping equal ffmpeg's")
+finally:
+    shutil.rmtree(work, ignore_errors=True)
+
+print(f"{checks - len(failures)}/{checks} checks passed")
+sys.exit(1 if failures else 0)
