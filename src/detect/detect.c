@@ -112,6 +112,8 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
         d->bubbles = nb;
         d->cap = nc;
     }
+    sp_measure_opts mo = o->measure;
+    mo.holes_filled = o->fill;
     int n = 0;
     double gas = 0;
     for (int i = 0; i < nc; i++) {
@@ -126,7 +128,7 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
             d->cap = cap;
         }
         sp_bubble *b = &d->bubbles[n];
-        rc = sp_measure_component(d->ms, &v, d->labels, i + 1, &comps[i], &o->measure, b, &keep, err);
+        rc = sp_measure_component(d->ms, &v, d->labels, i + 1, &comps[i], &mo, b, &keep, err);
         if (rc)
             return rc;
         if (!keep)
@@ -135,8 +137,7 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
         gas += b->area_px;
         sp_bubble whole = *b;
         int np = 0;
-        rc = sp_measure_split(d->ms, &v, d->labels, i + 1, &comps[i], &o->measure, &whole, b, SP_SPLIT_MAX,
-                              &np, err);
+        rc = sp_measure_split(d->ms, &v, d->labels, i + 1, &comps[i], &mo, &whole, b, SP_SPLIT_MAX, &np, err);
         if (rc)
             return rc;
         if (np == 0) {

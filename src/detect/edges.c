@@ -47,7 +47,7 @@ static inline int lab_at(const int32_t *labels, int w, int h, int x, int y)
 }
 
 int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int label, const sp_component *c,
-                      sp_error *err)
+                      int holes_filled, sp_error *err)
 {
     if (c->x0 < 0 || c->y0 < 0 || c->x1 >= w || c->y1 >= h || c->x0 > c->x1 || c->y0 > c->y1)
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d bounding box outside the frame",
@@ -64,13 +64,27 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
         rc = reserve((void **)&e->stack, &e->stack_cap, nw, sizeof(int32_t), err);
     if (rc)
         return rc;
-    for (int y = 0; y < e->wh; y++)
-        for (int x = 0; x < e->ww; x++)
-            e->ext[(size_t)y * e->ww + x] = lab_at(labels, w, h, e->wx0 + x, e->wy0 + y) == label ? 0 : 1;
+    /* With holes filled, a cell the component encloses would be a hole of the mask (background) or
+     * another component reached only through one (labels are 8-connected): neither exists, so all
+     * cells outside the component are exterior. */
+    const uint8_t other = holes_filled ? 2 : 1;
+    for (int y = 0; y < e->wh; y++) {
+        uint8_t *row = e->ext + (size_t)y * e->ww;
+        int yy = e->wy0 + y;
+        if (yy < 0 || yy >= h) {
+            memset(row, other, (size_t)e->ww);
+            continue;
+        }
+        const int32_t *lr = labels + (size_t)yy * (size_t)w;
+        for (int x = 0; x < e->ww; x++) {
+            int xx = e->wx0 + x;
+            row[x] = xx >= 0 && xx < w && lr[xx] == label ? 0 : other;
+        }
+    }
     /* 4-connected flood of non-component cells from the window frame: the dual of the 8-connected
      * component, so a diagonal gap in the outline does not leak into an enclosed region. */
     size_t sp = 0;
-    for (int y = 0; y < e->wh; y++)
+    for (int y = 0; y < e->wh && !holes_filled; y++)
         for (int x = 0; x < e->ww; x++)
             if (y == 0 || x == 0 || y == e->wh - 1 || x == e->ww - 1) {
                 size_t i = (size_t)y * e->ww + x;

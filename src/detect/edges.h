@@ -64,9 +64,10 @@ typedef struct sp_edges {
 
 void sp_edges_release(sp_edges *e);
 
-/* Mark the exterior of component `label` (described by *c) in e->ext. */
+/* Mark the exterior of component `label` (described by *c) in e->ext. holes_filled: the mask had
+ * its holes filled before labelling, so every cell not in the component is exterior (no flood). */
 int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int label, const sp_component *c,
-                      sp_error *err);
+                      int holes_filled, sp_error *err);
 
 /* Dark, light and minimum transmission of the component (after sp_edges_exterior). */
 int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,

@@ -39,6 +39,7 @@ void sp_measure_opts_default(sp_measure_opts *o)
     o->min_sharpness = SP_FOCUS_MIN_SHARPNESS_DEFAULT;
     o->split = 1;
     o->split_solidity = 0.9;
+    o->holes_filled = 0;
 }
 
 sp_measurer *sp_measurer_new(void)
@@ -194,7 +195,7 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has degenerate moments", label);
 
     sp_edges *e = &m->edges;
-    int rc = sp_edges_exterior(e, labels, w, h, label, c, err);
+    int rc = sp_edges_exterior(e, labels, w, h, label, c, o->holes_filled, err);
     if (!rc)
         rc = sp_edges_levels(e, v, labels, label, c, err);
     if (rc)

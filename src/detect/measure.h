@@ -19,6 +19,8 @@ typedef struct sp_measure_opts {
     int split;             /* 1: split clusters of overlapping bubbles (default 1) */
     double split_solidity; /* a component below this solidity with no concave point is still a
                               cluster (flagged, unsplit) (default 0.9) */
+    int holes_filled;      /* 1: the mask's holes were filled, so no component encloses anything
+                              (set by the detection chain; default 0) */
 } sp_measure_opts;
 
 void sp_measure_opts_default(sp_measure_opts *o);
