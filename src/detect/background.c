@@ -282,12 +282,22 @@ int sp_bg_guard_still(float *bg, int w, int h, double level, double max_frac, in
         rc = sp_error_set(err, SP_ERR_INTERNAL, "background guard: out of memory for %dx%d", w, h);
         goto fail;
     }
-    for (int y = 0; y < h; y++)
+    for (int y = 0; y < h; y++) {
+        /* The surface along a row is a quartic in x: its coefficients once per row, then Horner. */
+        double Y = y * sy - 1, py[POLY_DEG + 1], a[POLY_DEG + 1] = {0};
+        py[0] = 1.0;
+        for (int j = 1; j <= POLY_DEG; j++)
+            py[j] = py[j - 1] * Y;
+        for (int d = 0, k = 0; d <= POLY_DEG; d++)
+            for (int j = 0; j <= d; j++, k++)
+                a[d - j] += c[k] * py[j];
         for (int x = 0; x < w; x++) {
             size_t i = (size_t)y * w + x;
-            fit[i] = (float)poly_at(c, x * sx - 1, y * sy - 1);
+            double X = x * sx - 1;
+            fit[i] = (float)((((a[4] * X + a[3]) * X + a[2]) * X + a[1]) * X + a[0]);
             mk[i] = fit[i] > 0 && bg[i] < level * fit[i];
         }
+    }
     /* One blob at a time (8-connected flood), in raster order so the result is deterministic. */
     for (size_t s0 = 0; s0 < npx; s0++) {
         if (mk[s0] != 1)
