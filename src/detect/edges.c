@@ -150,12 +150,48 @@ static inline int ext_at(const sp_edges *e, int x, int y)
     return e->ext[(size_t)wy * e->ww + wx];
 }
 
-/* q-quantile (0..1) by sorting: deterministic and exact; the arrays are component-sized. */
+/* The k-th smallest of v[0..n) by Hoare's quickselect (in place). */
+static float select_k(float *v, size_t n, size_t k);
+
+#define QBINS 1024 /* transmission bins over [0, 2) for the quantile's first pass */
+
+/* q-quantile (0..1): the element of rank round(q·(n−1)), exact. Large arrays go through a histogram
+ * of the transmissions first (one branch-free pass), then a selection among the few values of the
+ * bin that holds the rank: quickselect's branches on thousands of values cost several times more. */
 static float quantile(float *v, size_t n, double q)
 {
     size_t k = (size_t)(q * (double)(n - 1) + 0.5);
     if (k >= n)
         k = n - 1;
+    if (n < 256)
+        return select_k(v, n, k);
+    uint32_t hist[QBINS];
+    memset(hist, 0, sizeof hist);
+    for (size_t i = 0; i < n; i++) {
+        float f = v[i] * (QBINS / 2);
+        int b = !(f >= 0.f) ? 0 : f >= (float)(QBINS - 1) ? QBINS - 1 : (int)f;
+        hist[b]++;
+    }
+    size_t below = 0;
+    int bin = 0;
+    while (below + hist[bin] <= k)
+        below += hist[bin++];
+    /* Move the bin's values to the front (order among them does not matter to the selection). */
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++) {
+        float f = v[i] * (QBINS / 2);
+        int b = !(f >= 0.f) ? 0 : f >= (float)(QBINS - 1) ? QBINS - 1 : (int)f;
+        if (b == bin) {
+            float t = v[m];
+            v[m++] = v[i];
+            v[i] = t;
+        }
+    }
+    return select_k(v, m, k - below);
+}
+
+static float select_k(float *v, size_t n, size_t k)
+{
     /* Hoare's quickselect: the k-th order statistic without sorting (the result equals the sorted
      * array's element k, so it is as deterministic as the sort was). */
     size_t lo = 0, hi = n - 1;
