@@ -61,7 +61,8 @@ int sp_bg_builder_count(const sp_bg_builder *b)
  * its samples lie below the candidate. Every round is a pass of compares over contiguous bytes, which
  * the compiler vectorises, where a per-pixel quickselect gathers samples a plane apart. n <= 255, so
  * counts fit a byte. */
-static void select8(const uint8_t *planes, size_t plane, int n, size_t off, int len, int k, uint8_t *out)
+static void select8(const uint8_t *planes, size_t plane, int n, size_t off, int len, int k, uint8_t *out,
+                    uint8_t *next)
 {
     uint8_t res[SEL_CHUNK] = {0}, cand[SEL_CHUNK], cnt[SEL_CHUNK];
     for (int bit = 7; bit >= 0; bit--) {
@@ -79,6 +80,22 @@ static void select8(const uint8_t *planes, size_t plane, int n, size_t off, int 
                 res[x] = cand[x];
     }
     memcpy(out, res, (size_t)len);
+    if (!next)
+        return;
+    /* The (k+1)-th smallest: the same value if more than k + 1 samples are at most it, else the
+     * smallest sample above it. One more pass instead of a second search. */
+    uint8_t le[SEL_CHUNK] = {0}, above[SEL_CHUNK];
+    memset(above, 0xff, sizeof above);
+    for (int j = 0; j < n; j++) {
+        const uint8_t *p = planes + (size_t)j * plane + off;
+        for (int x = 0; x < len; x++) {
+            le[x] = (uint8_t)(le[x] + (p[x] <= res[x]));
+            if (p[x] > res[x] && p[x] < above[x])
+                above[x] = p[x];
+        }
+    }
+    for (int x = 0; x < len; x++)
+        next[x] = le[x] > k + 1 ? res[x] : above[x];
 }
 
 static void select16(const uint16_t *planes, size_t plane, int n, size_t off, int len, int k, uint16_t *out)
@@ -123,10 +140,8 @@ int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nth
         float *d = bg + off;
         if (b->bytes == 1) {
             uint8_t va[SEL_CHUNK], vb[SEL_CHUNK];
-            select8(b->planes, plane, n, off, len, lo, va);
-            if (hi != lo)
-                select8(b->planes, plane, n, off, len, hi, vb);
-            else
+            select8(b->planes, plane, n, off, len, lo, va, hi != lo ? vb : NULL);
+            if (hi == lo)
                 memcpy(vb, va, sizeof va);
             for (int x = 0; x < len; x++)
                 d[x] = (float)(va[x] + frac * (vb[x] - va[x]));

@@ -3,6 +3,7 @@
 #include "detect/background.h"
 #include "detect/normalise.h"
 
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -12,8 +13,70 @@ static void fill8(sp_image *im, int v)
         memset((uint8_t *)im->data + y * im->stride, v, (size_t)im->width);
 }
 
+static int cmp_int(const void *a, const void *b)
+{
+    return *(const int *)a - *(const int *)b;
+}
+
+/* Random samples with many ties, 8- and 16-bit, several counts and percentiles: every pixel equals
+ * the percentile by sorting (linear between the two order statistics around p/100·(n−1)). */
+static void random_percentiles(void)
+{
+    const int w = 70, h = 3; /* 210 pixels: chunks of 64 and a partial one */
+    const double pcts[] = {0, 10, 50, 73.3, 100};
+    const int counts[] = {1, 2, 7, 40, 255};
+    sp_error err;
+    srand(99);
+    for (int bytes = 1; bytes <= 2; bytes++)
+        for (int ci = 0; ci < 5; ci++) {
+            int n = counts[ci];
+            int maxv = bytes == 1 ? (ci % 2 ? 256 : 9) : (ci % 2 ? 65536 : 40);
+            sp_bg_builder *b = NULL;
+            sp_image im = {0};
+            int *v = malloc(sizeof *v * (size_t)n * (size_t)(w * h)), *col = malloc(sizeof *col * (size_t)n);
+            float *bg = malloc(sizeof *bg * (size_t)(w * h));
+            if (!v || !col || !bg || sp_bg_builder_new(&b, w, h, bytes, n, &err) ||
+                sp_image_alloc(&im, w, h, bytes, &err)) {
+                CHECK(0, "random percentiles: setup");
+                return;
+            }
+            for (int k = 0; k < n; k++) {
+                for (int i = 0; i < w * h; i++) {
+                    int x = rand() % maxv;
+                    v[(size_t)k * (size_t)(w * h) + (size_t)i] = x;
+                    if (bytes == 1)
+                        ((uint8_t *)im.data)[(i / w) * im.stride + i % w] = (uint8_t)x;
+                    else
+                        ((uint16_t *)((uint8_t *)im.data + (i / w) * im.stride))[i % w] = (uint16_t)x;
+                }
+                sp_bg_builder_add(b, &im, &err);
+            }
+            for (int pi = 0; pi < 5; pi++) {
+                CHECK(sp_bg_builder_finish(b, pcts[pi], bg, 2, &err) == 0, "finish");
+                int bad = 0;
+                for (int i = 0; i < w * h; i++) {
+                    for (int k = 0; k < n; k++)
+                        col[k] = v[(size_t)k * (size_t)(w * h) + (size_t)i];
+                    qsort(col, (size_t)n, sizeof *col, cmp_int);
+                    double pos = pcts[pi] / 100.0 * (n - 1);
+                    int lo = (int)pos, hi = lo + 1 < n ? lo + 1 : lo;
+                    double want = col[lo] + (pos - lo) * (col[hi] - col[lo]);
+                    bad += fabs(bg[i] - want) > 1e-3 * (1 + fabs(want));
+                }
+                CHECK(bad == 0, "%d-bit, %d samples, percentile %g: %d pixels differ from sorting", 8 * bytes,
+                      n, pcts[pi], bad);
+            }
+            sp_bg_builder_free(b);
+            sp_image_free(&im);
+            free(v);
+            free(col);
+            free(bg);
+        }
+}
+
 int main(void)
 {
+    random_percentiles();
     sp_error err;
     const int w = 37, h = 11;
     sp_bg_builder *b = NULL;
