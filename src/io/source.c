@@ -211,7 +211,16 @@ int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int
         /* The rate override (and every still sequence) times frames as index / fps. */
         if (o->fps > 0)
             t = (double)idx / o->fps;
-        rc = crop(&s->full, &o->roi, img, err);
+        if (o->roi.x == 0 && o->roi.y == 0 && o->roi.w == s->full.width && o->roi.h == s->full.height) {
+            /* Whole frame: hand the buffer over instead of copying it (the back end reuses or
+             * reallocates whatever it gets back). */
+            sp_image t = *img;
+            *img = s->full;
+            s->full = t;
+            rc = SP_OK;
+        } else {
+            rc = crop(&s->full, &o->roi, img, err);
+        }
         if (rc) {
             s->failed = 1;
             return rc;
