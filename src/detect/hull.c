@@ -24,6 +24,13 @@ int64_t sp_hull_area2(int32_t *pts, int n, int32_t *work)
     if (n < 3)
         return 0;
     qsort(pts, (size_t)n, 2 * sizeof(int32_t), cmp_pt);
+    return sp_hull_area2_sorted(pts, n, work);
+}
+
+int64_t sp_hull_area2_sorted(const int32_t *pts, int n, int32_t *work)
+{
+    if (n < 3)
+        return 0;
     int k = 0;
     /* Lower chain left to right, then upper chain right to left; collinear points dropped. */
     for (int i = 0; i < n; i++) {

@@ -63,13 +63,14 @@ void sp_measurer_free(sp_measurer *m)
     free(m);
 }
 
-/* Solidity: filled area over the area of the convex hull of the filled pixels' corner points. The
- * row extremes' corners span the same hull as all corners, so 4 points per row suffice. */
+/* Solidity: filled area over the area of the convex hull of the filled pixels' corner points. Only
+ * the leftmost and rightmost corner at each corner-grid height can be on the hull: listed by height,
+ * they come already in the order the monotone chain needs (coordinates given as (y, x)). */
 static int solidity(sp_measurer *m, const int32_t *labels, int w, int label, const sp_component *c,
                     double *out, sp_error *err)
 {
     int rows = c->y1 - c->y0 + 1;
-    size_t need = (size_t)rows * 4 * 2 * 3; /* points + monotone-chain work (2n + 2) */
+    size_t need = (size_t)(rows + 1) * 2 * 2 * 3 + 8; /* points + monotone-chain work (2n + 2) */
     if (need > m->pts_cap) {
         int32_t *p = realloc(m->pts, need * sizeof *p);
         if (!p)
@@ -77,24 +78,38 @@ static int solidity(sp_measurer *m, const int32_t *labels, int w, int label, con
         m->pts = p;
         m->pts_cap = need;
     }
-    int n = 0;
-    for (int y = c->y0; y <= c->y1; y++) {
-        const int32_t *row = labels + (size_t)y * w;
+    int n = 0, pl = -1, pr = -1; /* extremes of the row above, -1 when none */
+    for (int y = c->y0; y <= c->y1 + 1; y++) {
         int xl = -1, xr = -1;
-        for (int x = c->x0; x <= c->x1; x++)
-            if (row[x] == label) {
-                if (xl < 0)
+        if (y <= c->y1) {
+            const int32_t *row = labels + (size_t)y * w;
+            for (int x = c->x0; x <= c->x1; x++)
+                if (row[x] == label) {
                     xl = x;
-                xr = x;
-            }
-        if (xl < 0)
-            continue;
-        /* Pixel (x, y) covers the corner-grid square [x, x+1] × [y, y+1]. */
-        int32_t q[8] = {xl, y, xl, y + 1, xr + 1, y, xr + 1, y + 1};
-        memcpy(m->pts + 2 * n, q, sizeof q);
-        n += 4;
+                    break;
+                }
+            for (int x = c->x1; x >= c->x0 && xl >= 0; x--)
+                if (row[x] == label) {
+                    xr = x;
+                    break;
+                }
+        }
+        /* Pixel (x, r) covers the corner-grid square [x, x+1] × [r, r+1]: height y takes corners from
+         * rows y − 1 and y. */
+        int lo = xl, hi = xr >= 0 ? xr + 1 : -1;
+        if (pl >= 0 && (lo < 0 || pl < lo))
+            lo = pl;
+        if (pr >= 0 && pr + 1 > hi)
+            hi = pr + 1;
+        if (lo >= 0) {
+            int32_t q[4] = {y, lo, y, hi};
+            memcpy(m->pts + 2 * n, q, sizeof q);
+            n += 2;
+        }
+        pl = xl;
+        pr = xr;
     }
-    int64_t a2 = sp_hull_area2(m->pts, n, m->pts + 2 * n);
+    int64_t a2 = sp_hull_area2_sorted(m->pts, n, m->pts + 2 * n);
     double s = a2 > 0 ? 2.0 * (double)c->area / (double)a2 : 1.0;
     *out = s > 1.0 ? 1.0 : s;
     return SP_OK;
