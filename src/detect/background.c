@@ -90,8 +90,8 @@ static void select8(const uint8_t *planes, size_t plane, int n, size_t off, int 
         const uint8_t *p = planes + (size_t)j * plane + off;
         for (int x = 0; x < len; x++) {
             le[x] = (uint8_t)(le[x] + (p[x] <= res[x]));
-            if (p[x] > res[x] && p[x] < above[x])
-                above[x] = p[x];
+            uint8_t q = p[x] > res[x] ? p[x] : 0xff; /* written without a branch: it vectorises */
+            above[x] = q < above[x] ? q : above[x];
         }
     }
     for (int x = 0; x < len; x++)
