@@ -53,6 +53,11 @@ int sp_bg_builder_count(const sp_bg_builder *b)
     return b->n;
 }
 
+void sp_bg_builder_reset(sp_bg_builder *b)
+{
+    b->n = 0;
+}
+
 #define SEL_CHUNK 64 /* pixels selected together: their samples stay in L1 across the bit rounds */
 
 /* The k-th smallest (0-based) of each pixel's n samples, for the len pixels at offset off of every

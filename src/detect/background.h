@@ -17,6 +17,8 @@ int sp_bg_builder_new(sp_bg_builder **out, int w, int h, int bytes, int nmax, sp
 /* Copy one frame in (it must have the builder's geometry). */
 int sp_bg_builder_add(sp_bg_builder *b, const sp_image *frame, sp_error *err);
 int sp_bg_builder_count(const sp_bg_builder *b);
+/* Forget the frames added so far. */
+void sp_bg_builder_reset(sp_bg_builder *b);
 /* Per-pixel `percentile` (0..100, linear interpolation between order statistics) of the frames
  * added so far, into bg (w·h floats, row stride w). nthreads 0 = OpenMP default. */
 int sp_bg_builder_finish(sp_bg_builder *b, double percentile, float *bg, int nthreads, sp_error *err);

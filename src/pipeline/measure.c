@@ -131,6 +131,8 @@ done:
     return rc;
 }
 
+#define KEY_MIN_SAMPLES 16 /* background samples per segment from keyframes, at least */
+
 typedef struct key_ctx {
     sp_bg_builder **bld;
     int per;
@@ -180,7 +182,9 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         goto done;
 
     /* A video with keyframes between dependent frames: decode the keyframes nearest the sample
-     * positions and nothing else, when the selection holds at least one per sample. */
+     * positions and nothing else. Fewer keyframes than samples still make a sound median down to
+     * KEY_MIN_SAMPLES per segment (a few per cent of bubble cover per pixel); below that, or when
+     * keyframes bunch so that a segment gets fewer than half of those, every frame is read. */
     int keyed = 0;
     if (sel > 0) {
         int64_t *tpos = malloc(sizeof *tpos * (size_t)nseg * (size_t)per);
@@ -194,10 +198,17 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
                 tpos[k * per + j] = a + (2 * (int64_t)j + 1) * len / (2 * per);
         }
         key_ctx kc = {bld, per};
-        rc = sp_source_sample(src, tpos, nseg * per, nseg * per, key_add, &kc, &keyed, err);
+        int need = per < KEY_MIN_SAMPLES ? per : KEY_MIN_SAMPLES;
+        rc = sp_source_sample(src, tpos, nseg * per, nseg * need, key_add, &kc, &keyed, err);
         free(tpos);
         if (rc)
             goto done;
+        for (int k = 0; keyed && k < nseg; k++)
+            if (2 * sp_bg_builder_count(bld[k]) < need)
+                keyed = 0;
+        if (!keyed)
+            for (int k = 0; k < nseg; k++)
+                sp_bg_builder_reset(bld[k]);
     }
 
     double t0 = now_s();
@@ -260,6 +271,9 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
     }
     snprintf(b->mode, sizeof b->mode, keyed ? "recording keyframes" : "recording");
     b->samples = per;
+    for (int k = 0; k < nseg; k++) /* keyframes may give fewer */
+        if (sp_bg_builder_count(bld[k]) < b->samples)
+            b->samples = sp_bg_builder_count(bld[k]);
 done:
     for (int k = 0; k < nseg; k++)
         sp_bg_builder_free(bld[k]);
