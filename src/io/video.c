@@ -470,6 +470,9 @@ void sp_video_close(sp_video *v)
 
 /* ---------------------------------------------------------------- frames that decode on their own */
 
+/* Packets the keyframe sampler lists at most (8 bytes each); longer runs read every frame. */
+#define KEYS_MAX_PACKETS (1LL << 23)
+
 typedef struct keypkt {
     int64_t index;     /* presentation position: rank of the packet's timestamp among all packets */
     int64_t dts_order; /* position in the file's packet order */
@@ -521,7 +524,7 @@ int sp_video_sample_keys(const char *path, const int64_t *target, int ntarget, i
         ret = av_read_frame(fmt, pkt);
         if (ret == AVERROR_EOF)
             break;
-        if (ret < 0 || (int64_t)npts >= COUNT_PACKETS_MAX)
+        if (ret < 0 || (int64_t)npts >= KEYS_MAX_PACKETS)
             goto unsupported;
         if (pkt->stream_index != stream) {
             av_packet_unref(pkt);
@@ -557,9 +560,8 @@ int sp_video_sample_keys(const char *path, const int64_t *target, int ntarget, i
     }
     if (npts == 0 || nkeys == 0)
         goto unsupported;
-    if (!(sorted = malloc(npts * sizeof *sorted)))
-        goto oom;
-    memcpy(sorted, pts, npts * sizeof *sorted);
+    sorted = pts; /* the keys keep their own timestamps: rank against the sorted list in place */
+    pts = NULL;
     qsort(sorted, npts, sizeof *sorted, cmp_i64v);
     for (size_t i = 1; i < npts; i++)
         if (sorted[i] == sorted[i - 1])
