@@ -738,20 +738,13 @@ typedef struct thumbs {
     int n;
 } thumbs;
 
-/* Encode one drawn frame once: the PNG file under overlays/ and its data URI for the page. */
-static int emit_thumb(const char *dir, const sp_canvas *cv, int64_t idx, thumbs *th, sp_error *err)
+/* An encoded overlay: written to its file under overlays/ and kept as a data URI for the page. */
+static int keep_thumb(const char *path, const unsigned char *png, size_t np, int64_t idx, thumbs *th,
+                      sp_error *err)
 {
-    char path[4200];
-    unsigned char *png = NULL;
-    size_t np = 0;
-    snprintf(path, sizeof path, "%s/overlays/frame_%05lld.png", dir, (long long)idx);
-    int rc = sp_canvas_png(cv, &png, &np, path, err);
-    if (rc)
-        return rc;
     sp_sbuf b64 = {0};
     sp_sbuf_base64(&b64, png, np);
-    rc = sp_png_bytes_write(png, np, path, err);
-    free(png);
+    int rc = sp_png_bytes_write(png, np, path, err);
     if (!rc && b64.failed)
         rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", path);
     if (rc) {
@@ -762,6 +755,29 @@ static int emit_thumb(const char *dir, const sp_canvas *cv, int64_t idx, thumbs 
     th->uri[th->n++] = b64.s;
     return SP_OK;
 }
+
+/* Encode one drawn frame once, then keep it. */
+static int emit_thumb(const char *dir, const sp_canvas *cv, int64_t idx, thumbs *th, sp_error *err)
+{
+    char path[4200];
+    unsigned char *png = NULL;
+    size_t np = 0;
+    snprintf(path, sizeof path, "%s/overlays/frame_%05lld.png", dir, (long long)idx);
+    int rc = sp_canvas_png(cv, &png, &np, path, err);
+    if (rc)
+        return rc;
+    rc = keep_thumb(path, png, np, idx, th, err);
+    free(png);
+    return rc;
+}
+
+typedef struct drawn {
+    char path[4200];
+    unsigned char *png;
+    size_t n;
+    int rc;
+    sp_error err;
+} drawn;
 
 /* The frame the caller already holds for index idx, or NULL. */
 static const sp_image *given_frame(const sp_report_opts *o, int64_t idx)
@@ -853,14 +869,35 @@ static int make_overlays(rdata *r, const sp_report_opts *o, thumbs *th, sp_repor
         snprintf(path, sizeof path, "%s/overlays", r->dir);
         if ((rc = sp_outdir_prepare(path, err)))
             goto done;
-        for (int i = 0; i < nwant; i++) {
-            if ((rc = sp_canvas_from_image(&cv, given_frame(o, want[i]), err)))
-                goto done;
-            sp_overlay_draw(&od, want[i], &cv, &oo);
-            if ((rc = emit_thumb(r->dir, &cv, want[i], th, err)))
-                goto done;
+        /* Drawn and encoded in parallel (deflate dominates), written in order. */
+        drawn *dr = calloc((size_t)nwant, sizeof *dr);
+        if (!dr) {
+            rc = sp_error_set(err, SP_ERR_INTERNAL, "%s: out of memory", r->dir);
+            goto done;
         }
-        res->overlays = th->n;
+#pragma omp parallel for schedule(dynamic, 1)
+        for (int i = 0; i < nwant; i++) {
+            drawn *q = &dr[i];
+            snprintf(q->path, sizeof q->path, "%s/overlays/frame_%05lld.png", r->dir, (long long)want[i]);
+            sp_canvas c = {0};
+            q->rc = sp_canvas_from_image(&c, given_frame(o, want[i]), &q->err);
+            if (!q->rc) {
+                sp_overlay_draw(&od, want[i], &c, &oo);
+                q->rc = sp_canvas_png(&c, &q->png, &q->n, q->path, &q->err);
+            }
+            sp_canvas_free(&c);
+        }
+        for (int i = 0; i < nwant && !rc; i++) {
+            if ((rc = dr[i].rc))
+                *err = dr[i].err;
+            else
+                rc = keep_thumb(dr[i].path, dr[i].png, dr[i].n, want[i], th, err);
+        }
+        for (int i = 0; i < nwant; i++)
+            free(dr[i].png);
+        free(dr);
+        if (!rc)
+            res->overlays = th->n;
         goto done;
     }
 
