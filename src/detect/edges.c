@@ -31,6 +31,9 @@ void sp_edges_release(sp_edges *e)
     free(e->ext);
     free(e->stack);
     free(e->opair);
+    free(e->pair_ok);
+    free(e->pair_t);
+    free(e->pair_w);
     free(e->vals);
     free(e->xy);
     free(e->wid);
@@ -363,13 +366,26 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     /* The crossing of edge_level of the local step, from the transmission SP_EDGE_INSET_PX inside
      * the crossing of the component-wide level to the light. */
     size_t nin_n = 0;
+    if (e->nopair > e->pair_cap) {
+        size_t c1 = e->pair_cap, c2 = e->pair_cap, c3 = e->pair_cap;
+        if ((rc = reserve((void **)&e->pair_ok, &c1, e->nopair, 1, err)) ||
+            (rc = reserve((void **)&e->pair_t, &c2, e->nopair, sizeof(double), err)) ||
+            (rc = reserve((void **)&e->pair_w, &c3, e->nopair, sizeof(float), err)))
+            return rc;
+        e->pair_cap = c1 < c2 ? (c1 < c3 ? c1 : c3) : (c2 < c3 ? c2 : c3);
+    }
+    e->cached_level = glevel;
+    e->cached_light = light;
     for (size_t q = 0; q < e->nopair; q++) {
         int x, y, dx, dy;
         opair_at(e, q, &x, &y, &dx, &dy);
         double t;
         double nin;
         double wd;
-        if (!pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd))
+        e->pair_ok[q] = (int8_t)pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd);
+        e->pair_t[q] = t;
+        e->pair_w[q] = (float)wd;
+        if (!e->pair_ok[q])
             continue;
         if (isfinite(nin)) {
             if ((rc = reserve((void **)&e->vals, &e->vals_cap, nin_n + 1, sizeof(float), err)))
@@ -399,6 +415,25 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     return SP_OK;
 }
 
+/* Index of outline pair (x, y) → (x + dx, y + dy) in the sorted pair list, or -1. */
+static long find_pair(const sp_edges *e, int x, int y, int dx, int dy)
+{
+    int wx = x - e->wx0, wy = y - e->wy0;
+    if (wx < 0 || wy < 0 || wx >= e->ww || wy >= e->wh)
+        return -1;
+    int d = dx == 1 ? 0 : dx == -1 ? 1 : dy == 1 ? 2 : 3; /* dir4's order */
+    uint32_t key = (uint32_t)(((size_t)wy * (size_t)e->ww + (size_t)wx) << 2 | (size_t)d);
+    size_t a = 0, b = e->nopair;
+    while (a < b) {
+        size_t m = a + (b - a) / 2;
+        if (e->opair[m] < key)
+            a = m + 1;
+        else
+            b = m;
+    }
+    return a < e->nopair && e->opair[a] == key ? (long)a : -1;
+}
+
 /* Inside for the trace: any window cell not reached from outside (component or enclosed). */
 static inline int trace_in(const sp_edges *e, int x, int y)
 {
@@ -422,6 +457,7 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
         }
     if (sx < 0)
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has no pixel on its top row", label);
+    const int cached = e->pair_cap >= e->nopair && e->cached_level == glevel && e->cached_light == light;
     size_t maxc = 4 * (size_t)c->area + 4 * (size_t)(e->ww + e->wh) + 8;
     int x = sx, y = sy, d = 3, rc;
     for (size_t it = 0; it < maxc; it++) {
@@ -429,8 +465,19 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
             return rc;
         int dx = D[d][0], dy = D[d][1];
         double t = 0, nin, wd = NAN;
-        int ok = lab_at(labels, w, h, x + dx, y + dy) >= 0 &&
-                 pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd) && fabs(t) <= 2.5;
+        int ok = lab_at(labels, w, h, x + dx, y + dy) >= 0;
+        if (ok) {
+            /* The same pair as in sp_edges_points: its result when cached, else computed. */
+            long q = cached ? find_pair(e, x, y, dx, dy) : -1;
+            if (q >= 0) {
+                ok = e->pair_ok[q];
+                t = e->pair_t[q];
+                wd = e->pair_w[q];
+            } else {
+                ok = pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd);
+            }
+            ok = ok && fabs(t) <= 2.5;
+        }
         sp_contour_pt *q = &e->cpt[e->nc++];
         q->x = ok ? x + t * dx : x + 0.5 * dx;
         q->y = ok ? y + t * dy : y + 0.5 * dy;

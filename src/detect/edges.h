@@ -45,6 +45,13 @@ typedef struct sp_edges {
     size_t stack_cap;
     uint32_t *opair; /* outline pairs in raster order, direction order: window index << 2 | direction */
     size_t opair_cap, nopair;
+    /* Per outline pair, what sp_edges_points found (for sp_edges_trace, which walks the same pairs):
+     * pair_ok 0/1 (-1 = not computed), crossing and width; valid for the level cached_level. */
+    int8_t *pair_ok;
+    double *pair_t;
+    float *pair_w;
+    size_t pair_cap;
+    double cached_level, cached_light;
     float *vals; /* scratch samples for percentiles */
     size_t vals_cap;
     double *xy; /* sub-pixel outline points, n pairs */
