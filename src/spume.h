@@ -109,6 +109,12 @@ int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int
 /* Pass over the next selected frame as sp_source_next would deliver it (same *index, *got), without
  * producing its pixels and, where the format allows, without decoding it. */
 int sp_source_skip(sp_source *s, int64_t *index, int *got, sp_error *err);
+/* Make the selection's frame at position pos (0-based, ahead of the next one) the next one read, by
+ * seeking where the recording allows it cheaply and safely (a sparse source, a selection without a
+ * step, a codec whose every frame stands alone and an index at one constant step). *done: 1 moved;
+ * 0 not possible, nothing changed; -1 the position is lost part-way: close the source and open it
+ * again. */
+int sp_source_seek(sp_source *s, int64_t pos, int *done, sp_error *err);
 /* Receives each frame read by sp_source_sample: the image (cropped to the region of interest, valid
  * during the call), its position in the selection (0-based) and the target it stands for. */
 typedef int (*sp_source_sample_fn)(void *ud, const sp_image *img, int64_t pos, int target, sp_error *err);

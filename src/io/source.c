@@ -265,6 +265,26 @@ int sp_source_skip(sp_source *s, int64_t *index, int *got, sp_error *err)
     }
 }
 
+int sp_source_seek(sp_source *s, int64_t pos, int *done, sp_error *err)
+{
+    *done = 0;
+    const sp_source_opts *o = &s->opts;
+    if (s->failed || !s->video || !o->sparse || o->step != 1 || pos <= s->delivered ||
+        (o->count > 0 && pos >= o->count))
+        return SP_OK;
+    int64_t k = o->start + pos;
+    int rc = sp_video_seek(s->video, k, done, err);
+    if (rc || *done < 0) {
+        s->failed = 1;
+        return rc;
+    }
+    if (*done > 0) {
+        s->next_index = k;
+        s->delivered = pos;
+    }
+    return SP_OK;
+}
+
 typedef struct sample_ctx {
     sp_source *s;
     sp_source_sample_fn fn;

@@ -52,6 +52,11 @@ int sp_video_next(sp_video *v, int want, sp_image *full, double *t_s, int *got, 
 /* Pass over the next frame: its packet is dropped undecoded when the video was opened sparse and its
  * codec codes every frame on its own; otherwise as sp_video_next with want == 0. */
 int sp_video_skip(sp_video *v, int *got, sp_error *err);
+/* Make frame k the next one read, by seeking, when the video was opened sparse, its codec codes every
+ * frame on its own and its index lists frames at one constant step. *done: 1 moved; 0 not possible
+ * (nothing changed: read on); -1 the seek failed part-way and the position is lost (close the
+ * video and read it again from the start). */
+int sp_video_seek(sp_video *v, int64_t k, int *done, sp_error *err);
 void sp_video_close(sp_video *v);
 /* Called with each sampled frame (full size, converted to grey), its position and its target. */
 typedef int (*sp_video_key_fn)(void *ud, const sp_image *full, int64_t index, int target, sp_error *err);

@@ -183,6 +183,10 @@ struct sp_video {
     int pending;        /* frame holds a decoded frame not yet delivered */
     int flushing, done; /* end of file reached / decoder drained */
     int skippable;      /* opened sparse, intra-only codec, no frame threads: packets may be dropped */
+    int seek_ok;        /* 1 seeking by timestamp is usable, 0 unknown yet, -1 not */
+    int64_t seek_dur;   /* timestamp step between frames, from the index */
+    AVPacket *stash;    /* the packet a seek landed on, to be read next */
+    int stashed;
     int width, height, bytes;
 };
 
@@ -221,7 +225,13 @@ static int decode_one(sp_video *v, int *got, sp_error *err)
                                 (long long)v->decoded, sp_averr(ret, eb, sizeof eb));
         if (v->flushing)
             return sp_error_set(err, SP_ERR_INTERNAL, "%s: decoder stalled while draining", v->path);
-        ret = av_read_frame(v->fmt, v->pkt);
+        if (v->stashed) {
+            av_packet_move_ref(v->pkt, v->stash);
+            v->stashed = 0;
+            ret = 0;
+        } else {
+            ret = av_read_frame(v->fmt, v->pkt);
+        }
         if (ret == AVERROR_EOF) {
             v->flushing = 1;
             ret = avcodec_send_packet(v->dec, NULL);
@@ -438,6 +448,13 @@ int sp_video_skip(sp_video *v, int *got, sp_error *err)
     *got = 0;
     if (!v->skippable || v->pending || v->flushing || v->done)
         return sp_video_next(v, 0, NULL, &t, got, err);
+    if (v->stashed) {
+        av_packet_unref(v->stash);
+        v->stashed = 0;
+        v->decoded++;
+        *got = 1;
+        return SP_OK;
+    }
     for (;;) {
         int ret = av_read_frame(v->fmt, v->pkt);
         if (ret == AVERROR_EOF)
@@ -455,10 +472,78 @@ int sp_video_skip(sp_video *v, int *got, sp_error *err)
     }
 }
 
+/* Seeking by timestamp is trusted only for a stream whose index lists frames at one constant step
+ * starting at the first frame's timestamp (rawvideo in NUT or AVI, for instance). */
+static int seek_usable(sp_video *v)
+{
+    if (v->seek_ok)
+        return v->seek_ok > 0;
+    v->seek_ok = -1;
+    AVStream *st = v->fmt->streams[v->stream];
+    int n = avformat_index_get_entries_count(st);
+    if (!v->skippable || n < 2 || v->first_ts == AV_NOPTS_VALUE)
+        return 0;
+    const AVIndexEntry *e0 = avformat_index_get_entry(st, 0), *e1 = avformat_index_get_entry(st, 1);
+    if (!e0 || !e1 || e0->timestamp != v->first_ts || e1->timestamp <= e0->timestamp)
+        return 0;
+    int64_t dur = e1->timestamp - e0->timestamp;
+    for (int i = 2; i < n; i++) {
+        const AVIndexEntry *e = avformat_index_get_entry(st, i);
+        if (!e || e->timestamp != e0->timestamp + (int64_t)i * dur)
+            return 0;
+    }
+    if (!v->stash && !(v->stash = av_packet_alloc()))
+        return 0;
+    v->seek_dur = dur;
+    v->seek_ok = 1;
+    return 1;
+}
+
+int sp_video_seek(sp_video *v, int64_t k, int *done, sp_error *err)
+{
+    (void)err;
+    *done = 0;
+    if (v->pending || v->flushing || v->done || v->stashed || k <= v->decoded || !seek_usable(v))
+        return SP_OK;
+    int64_t target = v->first_ts + k * v->seek_dur;
+    if (av_seek_frame(v->fmt, v->stream, target, AVSEEK_FLAG_BACKWARD) < 0) {
+        *done = -1; /* where the demuxer stands is not known any more */
+        return SP_OK;
+    }
+    avcodec_flush_buffers(v->dec);
+    for (;;) {
+        int ret = av_read_frame(v->fmt, v->pkt);
+        if (ret < 0) {
+            *done = -1;
+            return SP_OK;
+        }
+        if (v->pkt->stream_index != v->stream) {
+            av_packet_unref(v->pkt);
+            continue;
+        }
+        int64_t pts = v->pkt->pts;
+        if (pts != AV_NOPTS_VALUE && pts < target && (target - pts) % v->seek_dur == 0) {
+            av_packet_unref(v->pkt);
+            continue; /* landed before the frame: on the grid, drop */
+        }
+        if (pts != target) {
+            av_packet_unref(v->pkt);
+            *done = -1;
+            return SP_OK;
+        }
+        av_packet_move_ref(v->stash, v->pkt);
+        v->stashed = 1;
+        v->decoded = k;
+        *done = 1;
+        return SP_OK;
+    }
+}
+
 void sp_video_close(sp_video *v)
 {
     if (!v)
         return;
+    av_packet_free(&v->stash);
     sp_frameconv_free(&v->conv);
     av_frame_free(&v->frame);
     av_packet_free(&v->pkt);

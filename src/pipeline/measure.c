@@ -132,6 +132,7 @@ done:
 }
 
 #define KEY_MIN_SAMPLES 16 /* background samples per segment from keyframes, at least */
+#define SEEK_MIN_GAP 4     /* frames ahead of the next sample from which seeking beats reading */
 
 typedef struct key_ctx {
     sp_bg_builder **bld;
@@ -168,6 +169,7 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         per = (int)(sel / nseg) > 0 ? (int)(sel / nseg) : 1;
 
     int rc;
+    int64_t *tpos = NULL; /* sample positions, ascending */
     sp_bg_builder **bld = calloc((size_t)nseg, sizeof *bld);
     sp_source *src = NULL;
     sp_image img = {0};
@@ -187,7 +189,7 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
      * keyframes bunch so that a segment gets fewer than half of those, every frame is read. */
     int keyed = 0;
     if (sel > 0) {
-        int64_t *tpos = malloc(sizeof *tpos * (size_t)nseg * (size_t)per);
+        tpos = malloc(sizeof *tpos * (size_t)nseg * (size_t)per);
         if (!tpos) {
             rc = sp_error_set(err, SP_ERR_INTERNAL, "background: out of memory");
             goto done;
@@ -200,7 +202,6 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         key_ctx kc = {bld, per};
         int need = per < KEY_MIN_SAMPLES ? per : KEY_MIN_SAMPLES;
         rc = sp_source_sample(src, tpos, nseg * per, nseg * need, key_add, &kc, &keyed, err);
-        free(tpos);
         if (rc)
             goto done;
         for (int k = 0; keyed && k < nseg; k++)
@@ -213,7 +214,8 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
 
     double t0 = now_s();
     int64_t pos = 0;
-    int got = !keyed;
+    int got = !keyed, seekable = 1;
+    int ti = 0, ntp = sel > 0 ? nseg * per : 0;
     while (got) {
         int64_t idx;
         double t;
@@ -238,6 +240,30 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
             rc = sp_error_set(err, SP_ERR_INPUT,
                               "%s: interrupted while estimating the background; nothing written", input);
             goto done;
+        }
+        /* Far from the next sample: seek there where the recording allows it (rawvideo with an
+         * index). Should a seek go wrong part-way, start again reading in order. */
+        while (!take && seekable && ti < ntp && tpos[ti] < pos)
+            ti++;
+        if (!take && seekable && ti < ntp && tpos[ti] - pos >= SEEK_MIN_GAP) {
+            int moved = 0;
+            sp_error e2;
+            if (sp_source_seek(src, tpos[ti], &moved, &e2) || moved < 0) {
+                sp_source_close(src);
+                src = NULL;
+                if ((rc = sp_source_open(&src, input, &so, err)))
+                    goto done;
+                for (int k = 0; k < nseg; k++)
+                    sp_bg_builder_reset(bld[k]);
+                seekable = 0;
+                pos = 0;
+                ti = 0;
+                continue;
+            }
+            if (moved > 0) {
+                pos = tpos[ti];
+                continue;
+            }
         }
         if ((rc = take ? sp_source_next(src, &img, &idx, &t, &got, err)
                        : sp_source_skip(src, &idx, &got, err)))
@@ -275,6 +301,7 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         if (sp_bg_builder_count(bld[k]) < b->samples)
             b->samples = sp_bg_builder_count(bld[k]);
 done:
+    free(tpos);
     for (int k = 0; k < nseg; k++)
         sp_bg_builder_free(bld[k]);
     free(bld);
