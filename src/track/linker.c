@@ -264,6 +264,28 @@ static int cmp_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
+/* Semi-major axis of a detection's ellipse, from its area and aspect (area = π a b, b = aspect a). */
+static double semi_major(const sp_link_det *q)
+{
+    double asp = q->aspect > 0.05 && q->aspect <= 1 ? q->aspect : 1;
+    return sqrt(fmax(q->area_px, 0) / (M_PI * asp));
+}
+
+/* Squared offset (px, py) from detection q's centre in units of its ellipse grown by `grow` px
+ * on both axes: <= 1 inside. A merged outline is elongated, and a bubble hidden at one end of it
+ * lies far beyond its equal-area disc but inside its ellipse. */
+static double in_grown_ellipse(const sp_link_det *q, double px, double py, double grow)
+{
+    double a = semi_major(q), asp = q->aspect > 0.05 && q->aspect <= 1 ? q->aspect : 1;
+    double b = a * asp;
+    double t = q->tilt_deg * M_PI / 180, c = cos(t), sn = sin(t);
+    double dx = px - q->x, dy = py - q->y;
+    /* Tilt is counter-clockwise from +x with y up; rows run down, so flip y. */
+    double u = dx * c - dy * sn, v = dx * sn + dy * c;
+    double ga = a + grow, gb = b + grow;
+    return u * u / (ga * ga) + v * v / (gb * gb);
+}
+
 /* Frames elapsed between two pushes, as the options define them. */
 static double frames_between(const sp_linker *lk, int64_t f0, double t0, int64_t f1, double t1)
 {
@@ -320,8 +342,10 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
             g = o->gate_diam_frac * a->d;
         if (o->gate_speed_frac * speed * unseen > g)
             g = o->gate_speed_frac * speed * unseen;
-        if (a->n == 1 && o->birth_speed_px * unseen > g)
-            g = o->birth_speed_px * unseen;
+        /* Seen once: no velocity yet. A part entering through the border also grows, which
+         * moves its centroid by up to its own size on top of the bubble's motion. */
+        if (a->n == 1 && o->birth_speed_px * unseen + (a->edge ? a->d : 0) > g)
+            g = o->birth_speed_px * unseen + (a->edge ? a->d : 0);
         lk->gate[i] = g;
     }
 
@@ -333,7 +357,7 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
         minx = maxx = d[0].x;
         miny = maxy = d[0].y;
         for (int j = 0; j < n; j++)
-            maxrad = fmax(maxrad, sqrt(fmax(d[j].area_px, 0) / M_PI));
+            maxrad = fmax(maxrad, semi_major(&d[j]));
         for (int j = 1; j < n; j++) {
             minx = fmin(minx, d[j].x);
             maxx = fmax(maxx, d[j].x);
@@ -498,10 +522,8 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                                 int jj = lk->cellidx[k];
                                 if (!d[jj].edge && !(d[jj].d_px > 1.3 * a->d))
                                     continue;
-                                double rr = sqrt(d[jj].area_px / M_PI) + 0.5 * a->d;
-                                double dx = px - d[jj].x, dy = py - d[jj].y;
-                                double e2 = dx * dx + dy * dy;
-                                if (e2 <= rr * rr && (hj < 0 || e2 < he2)) {
+                                double e2 = in_grown_ellipse(&d[jj], px, py, 0.5 * a->d);
+                                if (e2 <= 1 && (hj < 0 || e2 < he2)) {
                                     hj = jj;
                                     he2 = e2;
                                 }
