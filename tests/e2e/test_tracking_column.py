@@ -79,10 +79,11 @@ print(f"truth tracks (>= 5 frames): {n}; detections allow {possible} ({100 * pos
 c.check(n >= 60, f"scene has enough tracks ({n})")
 c.check(recovered_possible >= 0.95 * possible,
         f"recovered {recovered_possible}/{possible} of the tracks the detections allow (>= 95%)")
-# Held figures: 82/92 and 3 switches after the linker's border and merge rules (the same detections
-# read 82/92 and 9 switches before them; docs/methods-track.md).
-c.check(recovered >= 0.89 * n, f"recovered {recovered}/{n} >= 89% (held; issue target 95%)")
-c.check(switches <= 0.035 * n, f"id switches {switches} <= 0.035 per track (held; issue target 1%)")
+# Held figures: 84/92 recovered, 2 switches. Under this matching the linker read 82/92 and 9 switches
+# before its merge and border rules, 82/92 and 3 after them; accepting defocused split pieces then
+# gave 84/92 and 2 (docs/methods-track.md).
+c.check(recovered >= 0.91 * n, f"recovered {recovered}/{n} >= 91% (held; issue target 95%)")
+c.check(switches <= 0.025 * n, f"id switches {switches} <= 0.025 per track (held; issue target 1%)")
 c.check(verr and statistics.median(verr) <= 0.02, "median relative vy error <= 2%")
 
 # d32 over the tracks the statistics used, against the truth diameters of the same bubbles.
