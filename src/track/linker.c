@@ -131,9 +131,7 @@ int sp_linker_new(sp_linker **out, const sp_linker_opts *o, sp_error *err)
         bad_opt(o->gate_speed_frac, 0, 1e3) || bad_opt(o->birth_speed_px, 0, 1e6) ||
         bad_opt(o->meas_sigma_px, 1e-6, 1e6) || bad_opt(o->accel_sigma_px, 0, 1e6) ||
         bad_opt(o->w_size, 0, 1e9) || bad_opt(o->w_aspect, 0, 1e9) || bad_opt(o->cost_max, 1e-9, 1e12) ||
-        bad_opt(o->cost_hidden, 0, 1e12) ||
-
-        o->max_points < 1 || o->max_points > 100000000)
+        bad_opt(o->cost_hidden, 0, 1e12) || o->max_points < 1 || o->max_points > 100000000)
         return sp_error_set(err, SP_ERR_INPUT, "linker: an option is out of range");
     sp_linker *lk = calloc(1, sizeof *lk);
     if (!lk || !(lk->as = sp_assigner_new())) {
@@ -474,7 +472,6 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                             double e2 = dx * dx + dy * dy;
                             if (e2 > g * g)
                                 continue;
-
                             /* Entering or leaving the view or a merge: the visible part's
                              * centroid is off the bubble's by up to a radius. */
                             double cst;
@@ -497,7 +494,6 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                                 cst += o->cost_hidden;
                             if (!(cst < o->cost_max))
                                 continue;
-
                             if (grow_pairs(lk, np + 2))
                                 goto oom;
                             lk->col[np] = j;
