@@ -118,6 +118,16 @@ static double tolerance(const sp_ellipse *el)
     return 0.4 + 0.02 * sqrt(el->a * el->b);
 }
 
+/* The same for accepting a piece, plus an allowance for defocus: an edge crossing's noise grows with
+ * the width of the step (the same image noise over a gentler gradient), and sharpness (focus.h) is
+ * about 1 / that width. Zero up to a 2 px wide step, so in-focus pieces are held as before; arcs are
+ * still merged under the plain tolerance, so two bubbles' arcs do not pass for one blurred ellipse. */
+static double accept_tolerance(const sp_split_piece *p)
+{
+    double blur = p->sharpness > 0 && isfinite(p->sharpness) ? 0.05 * fmax(0, 1 / p->sharpness - 2) : 0;
+    return tolerance(&p->el) + blur;
+}
+
 /* Fit an ellipse to the arcs of a group; fills g->p and g->ok. */
 static void fit_group(sp_splitter *s, const sp_edges *e, const arc *arcs, int na, group *g)
 {
@@ -288,7 +298,7 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split
     for (int i = 0; i < ng; i++) {
         const sp_split_piece *p = &g[i].p;
         /* Below 8 px across (the edge-fit size of measure.h) an arc no longer pins a piece's size. */
-        if (!g[i].ok || p->rms_px > tolerance(&p->el) || p->el.a * p->el.b < 16.0 ||
+        if (!g[i].ok || p->rms_px > accept_tolerance(p) || p->el.a * p->el.b < 16.0 ||
             p->el.b < 0.25 * p->el.a || p->span < 0.35)
             return SP_OK;
         /* A small piece seen over little of its outline is not pinned down: its ellipse can swell into

@@ -6,9 +6,10 @@
  * to i + k; concave points are local maxima of that depth above a floor. Each arc (trimmed near its
  * concave ends, where the two outlines blur together) gets a direct least-squares ellipse (Halir &
  * Flusser 1998); arcs are merged greedily while one ellipse still fits both within the residual
- * tolerance. The split is accepted only when every piece fits its arc closely, spans enough of
- * its own outline, and the union of the pieces reproduces the cluster's silhouette; otherwise the
- * cluster is reported unsplit and flagged, never guessed. */
+ * tolerance. The split is accepted only when every piece fits its arc closely (a defocused arc, its
+ * edge crossings noisier, is allowed a little more), spans enough of its own outline, and the union
+ * of the pieces reproduces the cluster's silhouette; otherwise the cluster is reported unsplit and
+ * flagged, never guessed. */
 #ifndef SP_DETECT_SPLIT_H
 #define SP_DETECT_SPLIT_H
 

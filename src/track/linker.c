@@ -71,6 +71,7 @@ void sp_linker_opts_default(sp_linker_opts *o)
     o->w_size = 10;
     o->w_aspect = 5;
     o->cost_max = 30;
+    o->cost_hidden = 5;
     o->max_points = 100000;
 }
 
@@ -130,7 +131,7 @@ int sp_linker_new(sp_linker **out, const sp_linker_opts *o, sp_error *err)
         bad_opt(o->gate_speed_frac, 0, 1e3) || bad_opt(o->birth_speed_px, 0, 1e6) ||
         bad_opt(o->meas_sigma_px, 1e-6, 1e6) || bad_opt(o->accel_sigma_px, 0, 1e6) ||
         bad_opt(o->w_size, 0, 1e9) || bad_opt(o->w_aspect, 0, 1e9) || bad_opt(o->cost_max, 1e-9, 1e12) ||
-        o->max_points < 1 || o->max_points > 100000000)
+        bad_opt(o->cost_hidden, 0, 1e12) || o->max_points < 1 || o->max_points > 100000000)
         return sp_error_set(err, SP_ERR_INPUT, "linker: an option is out of range");
     sp_linker *lk = calloc(1, sizeof *lk);
     if (!lk || !(lk->as = sp_assigner_new())) {
@@ -264,6 +265,67 @@ static int cmp_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
+/* Semi-major axis of a detection's ellipse, from its area and aspect (area = π a b, b = aspect a). */
+static double semi_major(const sp_link_det *q)
+{
+    double asp = q->aspect > 0.05 && q->aspect <= 1 ? q->aspect : 1;
+    return sqrt(fmax(q->area_px, 0) / (M_PI * asp));
+}
+
+/* Squared offset (px, py) from detection q's centre in units of its ellipse grown by `grow` px
+ * on both axes: <= 1 inside. A merged outline is elongated, and a bubble hidden at one end of it
+ * lies far beyond its equal-area disc but inside its ellipse. */
+static double in_grown_ellipse(const sp_link_det *q, double px, double py, double grow)
+{
+    double a = semi_major(q), asp = q->aspect > 0.05 && q->aspect <= 1 ? q->aspect : 1;
+    double b = a * asp;
+    double t = q->tilt_deg * M_PI / 180, c = cos(t), sn = sin(t);
+    double dx = px - q->x, dy = py - q->y;
+    /* Tilt is counter-clockwise from +x with y up; rows run down, so flip y. */
+    double u = dx * c - dy * sn, v = dx * sn + dy * c;
+    double ga = a + grow, gb = b + grow;
+    return u * u / (ga * ga) + v * v / (gb * gb);
+}
+
+/* The frame's detections binned on a uniform grid (see sp_linker_push). */
+typedef struct grid {
+    double minx, maxx, miny, maxy, cell;
+    long gw, gh;
+    const int *cellstart, *cellidx;
+} grid;
+
+/* The detection that may hide a track predicted at (px, py) with diameter dt: one holding more
+ * than one bubble (flagged, or much larger than this one) or cut by the border, whose ellipse grown
+ * by the track's radius holds the prediction (a small bubble behind a large one sits off the merged
+ * centroid by up to the large one's semi-major axis). Nearest in ellipse units wins; -1: none.
+ * Looked up through the grid within `reach` (the largest semi-major axis plus the radius). */
+static int find_cover(const grid *g, const sp_link_det *d, double maxrad, double px, double py, double dt)
+{
+    int hj = -1;
+    double he2 = 0, reach = maxrad + 0.5 * dt;
+    if (!(px + reach >= g->minx && px - reach <= g->maxx && py + reach >= g->miny && py - reach <= g->maxy))
+        return -1;
+    long cx0 = (long)fmax(0, floor((px - reach - g->minx) / g->cell));
+    long cx1 = (long)fmin((double)g->gw - 1, floor((px + reach - g->minx) / g->cell));
+    long cy0 = (long)fmax(0, floor((py - reach - g->miny) / g->cell));
+    long cy1 = (long)fmin((double)g->gh - 1, floor((py + reach - g->miny) / g->cell));
+    for (long cy = cy0; cy <= cy1; cy++)
+        for (long cx = cx0; cx <= cx1; cx++) {
+            long c = cy * g->gw + cx;
+            for (int k = g->cellstart[c]; k < g->cellstart[c + 1]; k++) {
+                int jj = g->cellidx[k];
+                if (!d[jj].edge && !(d[jj].d_px > 1.3 * dt))
+                    continue;
+                double e2 = in_grown_ellipse(&d[jj], px, py, 0.5 * dt);
+                if (e2 <= 1 && (hj < 0 || e2 < he2)) {
+                    hj = jj;
+                    he2 = e2;
+                }
+            }
+        }
+    return hj;
+}
+
 /* Frames elapsed between two pushes, as the options define them. */
 static double frames_between(const sp_linker *lk, int64_t f0, double t0, int64_t f1, double t1)
 {
@@ -320,8 +382,10 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
             g = o->gate_diam_frac * a->d;
         if (o->gate_speed_frac * speed * unseen > g)
             g = o->gate_speed_frac * speed * unseen;
-        if (a->n == 1 && o->birth_speed_px * unseen > g)
-            g = o->birth_speed_px * unseen;
+        /* Seen once: no velocity yet. A part entering through the border also grows, which
+         * moves its centroid by up to its own size on top of the bubble's motion. */
+        if (a->n == 1 && o->birth_speed_px * unseen + (a->edge ? a->d : 0) > g)
+            g = o->birth_speed_px * unseen + (a->edge ? a->d : 0);
         lk->gate[i] = g;
     }
 
@@ -333,7 +397,7 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
         minx = maxx = d[0].x;
         miny = maxy = d[0].y;
         for (int j = 0; j < n; j++)
-            maxrad = fmax(maxrad, sqrt(fmax(d[j].area_px, 0) / M_PI));
+            maxrad = fmax(maxrad, semi_major(&d[j]));
         for (int j = 1; j < n; j++) {
             minx = fmin(minx, d[j].x);
             maxx = fmax(maxx, d[j].x);
@@ -380,12 +444,17 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
         lk->cellstart[0] = 0;
     }
 
+    const grid gr = {minx, maxx, miny, maxy, cell, gw, gh, lk->cellstart, lk->cellidx};
+
     /* Candidate pairs, row by row (rows = tracks in id order, columns = detections, then one
      * private "missed" column per track). */
     size_t np = 0;
     for (int i = 0; i < R; i++) {
         active *a = &lk->act[i];
         lk->start[i] = (int)np;
+        /* A hidden track still inside a merge: see the missed column below. */
+        int cover = a->hidden && n > 0 ? find_cover(&gr, d, maxrad, a->k.x, a->k.y, a->d) : -1;
+        double cover_cost = o->cost_max;
         if (n > 0) {
             double g = lk->gate[i], px = a->k.x, py = a->k.y;
             if (px + g >= minx && px - g <= maxx && py + g >= miny && py - g <= maxy) {
@@ -419,6 +488,10 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                                 double da = d[j].aspect - a->aspect;
                                 cst += o->w_size * rs * rs + o->w_aspect * da * da;
                             }
+                            if (j == cover)
+                                cover_cost = cst;
+                            if (a->hidden && d[j].edge)
+                                cst += o->cost_hidden;
                             if (!(cst < o->cost_max))
                                 continue;
                             if (grow_pairs(lk, np + 2))
@@ -434,8 +507,13 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
                                 (long long)frame);
         if (grow_pairs(lk, np + 2))
             goto oom;
+        /* Hidden in a merge, a track may stay hidden (its missed column) or take a merged or
+         * cut detection for the same price: what it would cost to take the merge, plus
+         * cost_hidden. So it never pushes the merge's holder onto a stranger's piece to free the
+         * merge (a missed column at cost_max would), nor trades the merge back and forth with the
+         * holder, and it still takes up a whole outline that parts from the merge near it. */
         lk->col[np] = n + i;
-        lk->cost[np++] = o->cost_max;
+        lk->cost[np++] = fmin(o->cost_max, cover_cost + o->cost_hidden);
     }
     lk->start[R] = (int)np;
 
@@ -479,36 +557,7 @@ int sp_linker_push(sp_linker *lk, int64_t frame, double t_s, const sp_link_det *
              * projection, one passing behind another). Such a track may coast longer and take up its bubble
              * when they part. */
             a->hidden = 0;
-            int hj = -1;
-            double he2 = 0;
-            if (n > 0) {
-                /* Its outline overlapping the detection's disc is enough: a small bubble behind
-                 * a large one sits off the merged centroid by up to the large one's radius.
-                 * Looked up through the grid, within the largest detection radius. */
-                double reach = maxrad + 0.5 * a->d, px = a->k.x, py = a->k.y;
-                if (px + reach >= minx && px - reach <= maxx && py + reach >= miny && py - reach <= maxy) {
-                    long cx0 = (long)fmax(0, floor((px - reach - minx) / cell));
-                    long cx1 = (long)fmin((double)gw - 1, floor((px + reach - minx) / cell));
-                    long cy0 = (long)fmax(0, floor((py - reach - miny) / cell));
-                    long cy1 = (long)fmin((double)gh - 1, floor((py + reach - miny) / cell));
-                    for (long cy = cy0; cy <= cy1; cy++)
-                        for (long cx = cx0; cx <= cx1; cx++) {
-                            long c = cy * gw + cx;
-                            for (int k = lk->cellstart[c]; k < lk->cellstart[c + 1]; k++) {
-                                int jj = lk->cellidx[k];
-                                if (!d[jj].edge && !(d[jj].d_px > 1.3 * a->d))
-                                    continue;
-                                double rr = sqrt(d[jj].area_px / M_PI) + 0.5 * a->d;
-                                double dx = px - d[jj].x, dy = py - d[jj].y;
-                                double e2 = dx * dx + dy * dy;
-                                if (e2 <= rr * rr && (hj < 0 || e2 < he2)) {
-                                    hj = jj;
-                                    he2 = e2;
-                                }
-                            }
-                        }
-                }
-            }
+            int hj = n > 0 ? find_cover(&gr, d, maxrad, a->k.x, a->k.y, a->d) : -1;
             if (hj >= 0) {
                 /* Share the merged detection: the hidden bubble moves with it, somewhere inside
                  * it, so its centroid is a loose measurement of the bubble (variance of half the

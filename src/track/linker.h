@@ -34,6 +34,9 @@ typedef struct sp_linker_opts {
     double w_aspect;        /* cost weight on (change of aspect)² (default 5) */
     double cost_max;        /* pairs dearer than this are not linked; also the price of leaving a
                                track without a detection in a frame (default 30) */
+    double cost_hidden;     /* a track hidden in a merged or cut detection pays this on top of taking
+                               a flagged detection, and on top of taking the merge for staying hidden
+                               instead (default 5) */
     int max_points;         /* a track holding this many detections is ended and the next detection
                                starts a new one, so memory never grows with the run (default 100000) */
 } sp_linker_opts;

@@ -2,25 +2,34 @@
 
 The issue's check: >= 95% of truth tracks recovered as one track over >= 80% of their length, ID
 switches <= 1% of tracks, median relative error of vy_mm_s <= 2%, d32 within 3% of the truth.
-Matching as in test_tracking.py: per frame, a truth bubble takes the nearest measured centroid
-within max(2 px, 0.3 x truth minor_px). Truth comes from the scene's own generating geometry.
+Truth comes from the scene's own generating geometry.
 
-On this scene the detections alone cap the first figure well below 95%: a bubble cut by the border
-or merged into an unsplit cluster has no detection near its true centroid, so no linker can give
-it a track in that frame. The test therefore measures that ceiling (truth tracks whose frames have
-a matching detection in >= 80% of their length) and asks the linker to recover >= 95% of the
-tracks the detections allow - the issue's figure applied to the linker's own share. The overall
-figures (recovered, switches) are held at what this scene reaches, so the test fails if they get
-worse; the issue's targets for them are printed beside and are not met yet (docs/methods-track.md).
+Matching (track_match.py, shared with test_tracking.py): per frame, one to one, minimising the summed
+centroid distance over pairs within max(2 px, 0.3 x truth minor_px), as the CLEAR MOT metrics do
+(Bernardin & Stiefelhagen 2008). A truth bubble cut by the frame border is compared by the centroid
+of the part of its true ellipse inside the frame: its whole-bubble centroid lies partly outside the
+frame, where no detector can see, so the nearest-to-whole-centroid rule counted every border
+crossing as missed frames (21% of this scene's truth rows are cut). The one-to-one rule stops a
+bubble hidden entirely behind another from claiming the occluder's detection and being counted as
+switching to the occluder's track. Under the earlier rule (nearest centroid of the whole bubble, not
+one to one) this scene read 69/92 recovered and 13 switches at the start of this work.
+
+On this scene the detections alone cap the first figure below 95%: a bubble merged into a cluster
+the splitter cannot cut (a small bubble passing behind a large one, the outline nearly convex) has
+no detection of its own for tens of frames, so no linker can give it a track there. The test
+therefore also measures that ceiling (truth tracks whose frames have a matching detection in >= 80%
+of their length) and asks the linker to recover >= 95% of the tracks the detections allow - the
+issue's figure applied to the linker's own share. The overall figures (recovered, switches) are held
+at what this scene reaches, so the test fails if they get worse; the issue's targets for them are
+printed beside and are not met yet (docs/methods-track.md).
 Also: the same ids at 1 and 2 threads."""
 import filecmp
 import os
 import statistics
 from collections import Counter, defaultdict
 
-from scipy.spatial import cKDTree
-
 from common import Checks, build_dir, read_csv, read_json, spume, tmpdir
+from track_match import sequences
 
 build = build_dir()
 work = tmpdir("tracking-column")
@@ -41,18 +50,7 @@ MT = {r["track"]: r for r in read_csv(os.path.join(out2, "tracks.csv"))}
 S = read_json(os.path.join(out2, "summary.json"))
 c = Checks()
 
-by_frame = defaultdict(list)
-for r in M:
-    by_frame[r["frame"]].append(r)
-trees = {f: cKDTree([[float(m["x_px"]), float(m["y_px"])] for m in ms]) for f, ms in by_frame.items()}
-seq = defaultdict(list)
-for r in sorted(T, key=lambda r: int(r["frame"])):
-    mid = None
-    if r["frame"] in trees:
-        d, j = trees[r["frame"]].query([float(r["x_px"]), float(r["y_px"])])
-        if d < max(2.0, 0.3 * float(r["minor_px"])):
-            mid = by_frame[r["frame"]][j]["track"]
-    seq[r["track"]].append(mid)
+seq = sequences(T, M, meta["width"], meta["height"])
 
 n = recovered = switches = possible = recovered_possible = 0
 verr = []
@@ -81,10 +79,11 @@ print(f"truth tracks (>= 5 frames): {n}; detections allow {possible} ({100 * pos
 c.check(n >= 60, f"scene has enough tracks ({n})")
 c.check(recovered_possible >= 0.95 * possible,
         f"recovered {recovered_possible}/{possible} of the tracks the detections allow (>= 95%)")
-# Held figures (this scene reached 69/92 and 13 switches; 16 before border splitting, 32 before the
-# occlusion handling).
-c.check(recovered >= 0.74 * n, f"recovered {recovered}/{n} >= 74% (held; issue target 95%)")
-c.check(switches <= 0.2 * n, f"id switches {switches} <= 0.2 per track (held; issue target 1%)")
+# Held figures: 84/92 recovered, 2 switches. Under this matching the linker read 82/92 and 9 switches
+# before its merge and border rules, 82/92 and 3 after them; accepting defocused split pieces then
+# gave 84/92 and 2 (docs/methods-track.md).
+c.check(recovered >= 0.91 * n, f"recovered {recovered}/{n} >= 91% (held; issue target 95%)")
+c.check(switches <= 0.025 * n, f"id switches {switches} <= 0.025 per track (held; issue target 1%)")
 c.check(verr and statistics.median(verr) <= 0.02, "median relative vy error <= 2%")
 
 # d32 over the tracks the statistics used, against the truth diameters of the same bubbles.

@@ -337,9 +337,80 @@ static void test_occlusion(void)
     sp_linker_free(lk);
 }
 
+/* A merge's holder keeps it (invented geometry, after a case seen on the dense column): a large
+ * bubble A and a small one B merge into one flagged outline that A's track holds while B's track is
+ * hidden in it. Then a stranger C, whole, appears 68 px from A. Pricing B's miss at cost_max made the
+ * assignment move A's track onto C so B's track could take the merge; B's track must stay hidden. */
+static void test_merge_holder(void)
+{
+    sp_linker *lk = NULL;
+    sp_error err;
+    CHECK(sp_linker_new(&lk, NULL, &err) == 0, "new");
+    const double da = 90, db = 36, dc = 47, aa = M_PI * da * da / 4, ab = M_PI * db * db / 4;
+    int64_t ida = 0, idb = 0, idc = 0;
+    int ok = 1, kept = 1, merged = 0;
+    for (int f = 0; f < 21 && ok; f++) {
+        double ax = 300, y = 700 - 10.0 * f, bx = ax + fmax(80 - 8.0 * f, 20);
+        sp_link_det d[3];
+        int64_t ids[3];
+        int n = 0;
+        if (bx - ax < 55) {
+            double a = aa + ab;
+            d[n++] = (sp_link_det){(aa * ax + ab * bx) / a, y, sqrt(4 * a / M_PI), 0.7, 0, a, 1};
+            merged++;
+        } else {
+            d[n++] = det(ax, y, da);
+            d[n++] = det(bx, y, db);
+        }
+        if (f >= 12)
+            d[n++] = det(ax + 68, y + 10, dc);
+        ok = sp_linker_push(lk, f, f / 500.0, d, n, ids, &err) == 0;
+        if (f == 2) {
+            ida = ids[0];
+            idb = ids[1];
+        }
+        if (f >= 12) {
+            kept &= ids[0] == ida;
+            if (f == 12)
+                idc = ids[n - 1];
+            kept &= ids[n - 1] == idc;
+        }
+    }
+    CHECK(ok && merged >= 15, "pushed, %d merged frames", merged);
+    CHECK(kept && idc != ida && idc != idb,
+          "the merge stays with A's track (%lld), the stranger gets its own (%lld)", (long long)ida,
+          (long long)idc);
+    CHECK(sp_linker_active(lk) == 3, "B's track is still held, hidden (%d active)", sp_linker_active(lk));
+    sp_linker_free(lk);
+}
+
+/* A bubble entering through the border at 11 px/frame (as on the dense column): the part in view grows
+ * from a sliver and its centroid runs along the border. One track, not one per frame. */
+static void test_edge_entry(void)
+{
+    sp_linker *lk = NULL;
+    sp_error err;
+    CHECK(sp_linker_new(&lk, NULL, &err) == 0, "new");
+    int64_t first = 0;
+    int ok = 1, same = 1;
+    for (int f = 0; f < 6 && ok; f++) {
+        double w = 2.0 + 4.0 * f; /* width in view */
+        sp_link_det q = {639.5 - w / 2, 677 - 11.0 * f, sqrt(4 * w * 20 / M_PI), 0.2, 90, w * 20, 1};
+        int64_t id;
+        ok = sp_linker_push(lk, f, f / 500.0, &q, 1, &id, &err) == 0;
+        if (f == 0)
+            first = id;
+        same &= id == first;
+    }
+    CHECK(ok && same, "entering bubble keeps one track");
+    sp_linker_free(lk);
+}
+
 int main(void)
 {
     test_occlusion();
+    test_merge_holder();
+    test_edge_entry();
     test_kalman();
     test_crossing();
     test_gaps();
