@@ -12,6 +12,9 @@ References:
   - Reading in order with sp_source_skip for the frames passed over (rawvideo NUT, whose packets are
     dropped undecoded; FFV1, decoded; a PNG directory, not read) gives the same positions and pixels
     as ffmpeg's decode.
+  - Seeking to each sample (rawvideo in NUT and AVI, whose indexes list every frame at one step;
+    Matroska, whose index grows as it is read) reads the same frames as ffmpeg's decode at those
+    positions.
   - The measure job on FFV1 with a GOP of 4 (background from keyframes; a GOP of 7 has fewer than
     16 keyframes in 90 frames and reads every frame) agrees with the same frames as
     rawvideo (background from the exact sample positions): detections within 1%, median diameter
@@ -149,6 +152,21 @@ try:
         check([r[0] for r in rows] == targets, f"{name}: in-order reading with skips reaches {targets}")
         for (pos, _), img in zip(rows, got):
             check(np.array_equal(img, ref[pos]), f"{name}: pixels of frame {pos} after skipping equal ffmpeg's")
+
+    # Seeking to each target (rawvideo with a constant-step index: NUT, AVI) lands on the right frame.
+    # Matroska's index grows as frames are read; whether it seeks or reads on, the frames must be right.
+    for name, enc_args, expect_seek in (("raw.nut", None, True), ("raw.avi", ["-c:v", "rawvideo", "-pix_fmt", "gray"], True),
+                                        ("raw.mkv", ["-c:v", "rawvideo", "-pix_fmt", "gray"], None)):
+        if enc_args:
+            files[name] = os.path.join(work, name)
+            run(["ffmpeg", "-nostdin", "-loglevel", "error", "-y", "-i", src, *enc_args, files[name]])
+        ref = ff_frames(files[name])
+        done, rows, got = probe(files[name], n, "seek", dump)
+        if expect_seek is not None:
+            check((done > 0) == expect_seek, f"{name}: {done} seeks moved (expected some)")
+        check([r[0] for r in rows] == targets, f"{name}: frames read after seeking {[r[0] for r in rows]}")
+        for (pos, _), img in zip(rows, got):
+            check(np.array_equal(img, ref[pos]), f"{name}: pixels of frame {pos} after a seek equal ffmpeg's")
 
     # The measure job: FFV1 with a GOP estimates its background from keyframes and agrees with the
     # same frames measured from rawvideo (whose background uses the exact sample positions).

@@ -1,11 +1,12 @@
-/* probe_io_sample INPUT N [--start S] [--count C] [--roi x,y,w,h] [--fps F] [--mode keys|skip]
+/* probe_io_sample INPUT N [--start S] [--count C] [--roi x,y,w,h] [--fps F] [--mode keys|skip|seek]
  *                 [--dump FILE]
  * Reads frames near N target positions spread evenly over the selection (position (2j+1)·n/(2N)),
  * either with sp_source_sample (mode keys: prints "done D", then "pos target" per frame read) or in
  * order, passing the others over with sp_source_skip (mode skip: prints "done 1", then
- * "pos target" for the frame at each target position). --dump writes each frame read (8-bit rows,
- * or 16-bit little-endian) to FILE in the order printed. On error: the message on stderr and its
- * code as exit status. */
+ * "pos target" for the frame at each target position) or by seeking to each target with
+ * sp_source_seek (mode seek: "pos target" per frame, then "done S", S the seeks that moved). --dump writes
+ * each frame read (8-bit rows, or 16-bit little-endian) to FILE in the order printed. On error: the message
+ * on stderr and its code as exit status. */
 #include "spume.h"
 
 #include <stdio.h>
@@ -51,7 +52,8 @@ int main(int argc, char **argv)
     sp_source_opts o;
     sp_source_opts_default(&o);
     o.sparse = 1;
-    int n = atoi(argv[2]), keys = 1;
+    int n = atoi(argv[2]);
+    const char *mode = "keys";
     const char *dpath = NULL;
     for (int i = 3; i + 1 < argc; i += 2) {
         const char *a = argv[i], *v = argv[i + 1];
@@ -64,7 +66,7 @@ int main(int argc, char **argv)
         else if (!strcmp(a, "--roi"))
             sscanf(v, "%d,%d,%d,%d", &o.roi.x, &o.roi.y, &o.roi.w, &o.roi.h);
         else if (!strcmp(a, "--mode"))
-            keys = !strcmp(v, "keys");
+            mode = v;
         else if (!strcmp(a, "--dump"))
             dpath = v;
     }
@@ -88,11 +90,43 @@ int main(int argc, char **argv)
         rc = sp_error_set(&err, SP_ERR_INTERNAL, "%s: cannot write", dpath);
         goto fail;
     }
-    if (keys) {
+    if (!strcmp(mode, "keys")) {
         int done = 0;
         rc = sp_source_sample(src, pos, n, n, got_one, &c, &done, &err);
         if (!rc)
             printf("done %d\n", done);
+    } else if (!strcmp(mode, "seek")) {
+        /* Seek to each target, then read it: prints "done S" with S the seeks that moved. */
+        int moved_n = 0;
+        for (int j = 0; j < n && !rc; j++) {
+            int moved = 0;
+            int64_t idx;
+            double t;
+            int got = 0;
+            if ((rc = sp_source_seek(src, pos[j], &moved, &err)))
+                break;
+            if (moved < 0) {
+                rc = sp_error_set(&err, SP_ERR_INTERNAL, "seek to %lld lost the position", (long long)pos[j]);
+                break;
+            }
+            moved_n += moved;
+            for (;;) { /* without a seek, read on to the target */
+                if ((rc = sp_source_next(src, &img, &idx, &t, &got, &err)) || !got)
+                    break;
+                if (idx >= o.start + pos[j])
+                    break;
+            }
+            if (rc || !got)
+                break;
+            if (idx != o.start + pos[j]) {
+                rc = sp_error_set(&err, SP_ERR_INTERNAL, "target %lld read as %lld", (long long)pos[j],
+                                  (long long)idx);
+                break;
+            }
+            rc = got_one(&c, &img, pos[j], j, &err);
+        }
+        if (!rc)
+            printf("done %d\n", moved_n);
     } else {
         printf("done 1\n");
         int j = 0;
