@@ -23,6 +23,9 @@ out = os.path.join(work, "out")
 spume(build, "synth", "plume", "--out", scene, "--no-png", "--quiet")
 meta = read_json(os.path.join(scene, "scene.json"))
 T = read_csv(os.path.join(scene, "truth_bubbles.csv"))
+ov = [r for r in T if r["overlap"] == "1"]
+print(f"scene: {len(T)} truth rows, {len(ov)} in overlaps ({100 * len(ov) / len(T):.1f}%) on "
+      f"{len({r['track'] for r in ov})} tracks; {sum(r['edge'] == '1' for r in T)} cut by the border")
 
 # The in-focus band set as docs/methods-accuracy.md tells a user to: from bubbles at known distances
 # from the focal plane (here the scene's truth plays the traverse), the outline sharpness where
