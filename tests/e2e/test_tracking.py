@@ -6,8 +6,9 @@ tracks behind the measured tracks that entered the statistics, so the check is o
 focus selection, which has its own check); ID switches <= 1% of tracks (the issue's figure; the
 denser column with zigzags and overlaps has its own test, test_tracking_column.py). Matching is the
 column test's (track_match.py: one to one per frame, a bubble cut by the border compared by the part
-of it inside the frame). Truth comes from the scene's own generating geometry. SPUME_PLUME_SEED=N runs the same checks on another seed of the scene (by hand:
-the suite runs the default seed)."""
+of it inside the frame). Truth comes from the scene's own generating geometry.
+SPUME_PLUME_SEED=N runs the same checks on another seed of the scene (by hand; the suite runs the
+default seed)."""
 import os
 import statistics
 from collections import Counter, defaultdict
