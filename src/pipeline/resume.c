@@ -205,6 +205,7 @@ typedef struct ckio {
     FILE *f;
     uint64_t h;
     int bad;
+    long long size; /* of the file being read: no block may claim more */
 } ckio;
 
 static void put(ckio *c, const void *p, size_t n)
@@ -234,7 +235,7 @@ static void put_text(ckio *c, const char *s)
 static char *get_text(ckio *c)
 {
     uint32_t n;
-    if (get(c, &n, sizeof n) || n > CK_MAX_TEXT)
+    if (get(c, &n, sizeof n) || n > CK_MAX_TEXT || (long long)n > c->size)
         return NULL;
     char *s = malloc((size_t)n + 1);
     if (!s)
@@ -295,7 +296,7 @@ static int load_checkpoint(sp_resume *r, const sp_source_info *info, sp_error *e
     const char *path = r->ckpath;
     int rc = SP_OK;
     char *settings = NULL, *ident = NULL;
-    ckio c = {fopen(path, "rb"), FNV_OFFSET, 0};
+    ckio c = {fopen(path, "rb"), FNV_OFFSET, 0, 0};
     if (!c.f) {
         if (errno != ENOENT)
             return sp_error_set(err, SP_ERR_INPUT, "%s: cannot read: %s", path, strerror(errno));
@@ -305,6 +306,13 @@ static int load_checkpoint(sp_resume *r, const sp_source_info *info, sp_error *e
         return sp_error_set(err, SP_ERR_INPUT, "%s: no interrupted run to resume (no %s)", r->dir,
                             SP_RESUME_CHECKPOINT);
     }
+    struct stat st;
+    if (fstat(fileno(c.f), &st) != 0 || !S_ISREG(st.st_mode)) {
+        rc = sp_error_set(err, SP_ERR_INPUT, "%s: not a regular file", path);
+        goto done;
+    }
+    const long long fsize = (long long)st.st_size;
+    c.size = fsize;
     char magic[8];
     uint32_t ver, order, bsize;
     if (get(&c, magic, 8) || memcmp(magic, CK_MAGIC, 8)) {
@@ -353,14 +361,18 @@ static int load_checkpoint(sp_resume *r, const sp_source_info *info, sp_error *e
         rc = damaged(err, path, "truncated");
         goto done;
     }
-    if (g[0] < 1 || g[0] > CK_MAX_BG || g[1] != info->width || g[2] != info->height || g[3] < 0 || g[4] < 0 ||
+    if (g[0] < 1 || g[0] > CK_MAX_BG || g[1] < 1 || g[2] < 1 || g[1] > SP_MAX_DIM || g[2] > SP_MAX_DIM ||
+        (long long)g[1] * g[2] > SP_MAX_PIXELS || g[3] < 0 || g[4] < 0 ||
         !memchr(b->mode, '\0', sizeof b->mode)) {
         rc = damaged(err, path, "bad background block");
         goto done;
     }
-    if ((rc = sp_check_dims(g[1], g[2], path, err)))
-        goto done;
     size_t npx = (size_t)g[1] * (size_t)g[2];
+    /* Allocate only what the file can actually hold, so a damaged header cannot ask for gigabytes. */
+    if ((double)g[0] * ((double)sizeof(double) + sizeof(float) * (double)npx) > (double)fsize) {
+        rc = damaged(err, path, "truncated");
+        goto done;
+    }
     b->width = g[1];
     b->height = g[2];
     b->samples = g[3];
@@ -403,6 +415,12 @@ static int load_checkpoint(sp_resume *r, const sp_source_info *info, sp_error *e
     }
     if (text_diff(ident, r->ident, why, sizeof why)) {
         rc = sp_error_set(err, SP_ERR_INPUT, "%s: the input is not the interrupted run's (%s)", path, why);
+        goto done;
+    }
+    if (b->width != info->width || b->height != info->height) {
+        rc = sp_error_set(err, SP_ERR_INPUT,
+                          "%s: the input is not the interrupted run's (frames %dx%d, was %dx%d)", path,
+                          info->width, info->height, b->width, b->height);
         goto done;
     }
 done:
@@ -768,7 +786,7 @@ int sp_resume_save(sp_resume *r, const sp_resume_bg *bg, int64_t pos, int64_t ne
     int rc = sp_outfile_open(&o, r->dir, SP_RESUME_CHECKPOINT, err);
     if (rc)
         return rc;
-    ckio c = {o.f, FNV_OFFSET, 0};
+    ckio c = {o.f, FNV_OFFSET, 0, 0};
     uint32_t ver = CK_VERSION, order = CK_ORDER, bsize = sizeof(sp_bubble), tsize = (uint32_t)totals_size;
     put(&c, CK_MAGIC, 8);
     put(&c, &ver, 4);
