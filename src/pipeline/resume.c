@@ -38,12 +38,14 @@ struct sp_resume {
     int64_t spill_bytes;
     uint64_t spill_hash;
     long long bubbles_bytes, frames_bytes;
+    uint64_t bubbles_hash, frames_hash;
     unsigned char *totals;
     uint32_t totals_size;
     sp_resume_bg bg; /* owned until taken */
 
     FILE *spill; /* linker inputs of this run, appended frame by frame */
     int spill_is_tmp;
+    int replayed; /* resumed with tracking: the spill is to be reopened for appending */
     int64_t spill_len;
     uint64_t spill_h;
 };
@@ -335,7 +337,8 @@ static int load_checkpoint(sp_resume *r, const sp_source_info *info, sp_error *e
         goto done;
     }
     int64_t v[6];
-    if (get(&c, v, sizeof v) || get(&c, &r->spill_hash, 8) || get(&c, &r->totals_size, 4)) {
+    if (get(&c, v, sizeof v) || get(&c, &r->spill_hash, 8) || get(&c, &r->bubbles_hash, 8) ||
+        get(&c, &r->frames_hash, 8) || get(&c, &r->totals_size, 4)) {
         rc = damaged(err, path, "truncated");
         goto done;
     }
@@ -602,7 +605,9 @@ int sp_resume_copy_table(sp_resume *r, const char *name, FILE *dst, sp_error *er
 {
     char path[4200];
     snprintf(path, sizeof path, "%s/%s", r->dir, name);
-    long long want = !strcmp(name, "bubbles.csv") ? r->bubbles_bytes : r->frames_bytes;
+    int is_b = !strcmp(name, "bubbles.csv");
+    long long want = is_b ? r->bubbles_bytes : r->frames_bytes;
+    uint64_t h = FNV_OFFSET;
     FILE *f = fopen(path, "rb");
     if (!f)
         return sp_error_set(err, SP_ERR_INPUT, "%s: cannot read: %s", path, strerror(errno));
@@ -618,16 +623,35 @@ int sp_resume_copy_table(sp_resume *r, const char *name, FILE *dst, sp_error *er
         total += (long long)n;
         if (total > want || fwrite(buf, 1, n, dst) != n)
             break;
+        h = fnv(h, buf, n);
     }
-    if (ferror(f) || total != want)
+    if (ferror(f) || total != want || h != (is_b ? r->bubbles_hash : r->frames_hash))
         rc = sp_error_set(err, SP_ERR_INPUT,
-                          "%s: changed since the interrupt (%lld bytes, the checkpoint says %lld)", path,
-                          total, want);
+                          "%s: changed since the interrupt (its size or checksum is not the checkpoint's); "
+                          "rerun without --resume",
+                          path);
     else if (ferror(dst))
         rc = sp_error_set(err, SP_ERR_INPUT, "%s: write failed while copying %s", r->dir, name);
     free(buf);
     fclose(f);
     return rc;
+}
+
+/* FNV-1a of a whole file (the tables just committed; read back from the page cache). */
+static int hash_file(const char *path, uint64_t *h)
+{
+    FILE *f = fopen(path, "rb");
+    if (!f)
+        return -1;
+    unsigned char *buf = malloc(1 << 16);
+    size_t n;
+    *h = FNV_OFFSET;
+    while (buf && (n = fread(buf, 1, 1 << 16, f)) > 0)
+        *h = fnv(*h, buf, n);
+    int bad = !buf || ferror(f);
+    free(buf);
+    fclose(f);
+    return bad ? -1 : 0;
 }
 
 /* One spill record: frame, time, count, then the sp_bubble structs exactly as the linker got them. */
@@ -708,10 +732,7 @@ int sp_resume_replay(sp_resume *r, sp_trackrun *tr, sp_error *err)
     fclose(f);
     if (rc)
         return rc;
-    /* Anything past the checkpoint's length came from a run that ended without one: dropped. */
-    if (truncate(r->linkspath, (off_t)r->spill_bytes) != 0 || !(r->spill = fopen(r->linkspath, "ab")))
-        return sp_error_set(err, SP_ERR_INPUT, "%s: cannot append: %s", r->linkspath, strerror(errno));
-    setvbuf(r->spill, NULL, _IOFBF, 1 << 20);
+    r->replayed = 1; /* the spill is reopened for appending with the first new frame */
     r->spill_len = r->spill_bytes;
     r->spill_h = r->spill_hash;
     return SP_OK;
@@ -736,6 +757,12 @@ int sp_resume_spill(sp_resume *r, int64_t frame, double t_s, const sp_bubble *b,
                                 strerror(errno));
         r->spill_is_tmp = 1;
         setvbuf(r->spill, NULL, _IOFBF, 1 << 20);
+    } else if (!r->spill && r->replayed) {
+        /* Resumed: anything past the checkpoint's length came from a run that ended without one. */
+        if (truncate(r->linkspath, (off_t)r->spill_bytes) != 0 || !(r->spill = fopen(r->linkspath, "ab")))
+            return sp_error_set(err, SP_ERR_INPUT, "%s: cannot append: %s", r->linkspath, strerror(errno));
+        setvbuf(r->spill, NULL, _IOFBF, 1 << 20);
+        r->replayed = 0;
     }
     if (!r->spill)
         return SP_OK;
@@ -763,7 +790,8 @@ int sp_resume_save(sp_resume *r, const sp_resume_bg *bg, int64_t pos, int64_t ne
     snprintf(tb, sizeof tb, "%s/bubbles.csv", r->dir);
     snprintf(tf, sizeof tf, "%s/frames.csv", r->dir);
     long long bsz = file_size(tb), fsz = file_size(tf);
-    if (bsz < 0 || fsz < 0)
+    uint64_t bh, fh;
+    if (bsz < 0 || fsz < 0 || hash_file(tb, &bh) || hash_file(tf, &fh))
         return sp_error_set(err, SP_ERR_INPUT, "%s: tables missing after the interrupt", r->dir);
     if (!r->have_first)
         return sp_error_set(err, SP_ERR_INTERNAL, "%s: no frame analysed before the interrupt", r->dir);
@@ -797,6 +825,8 @@ int sp_resume_save(sp_resume *r, const sp_resume_bg *bg, int64_t pos, int64_t ne
     int64_t v[6] = {pos, next_frame, r->spill_len, bsz, fsz, 0};
     put(&c, v, sizeof v);
     put(&c, &r->spill_h, 8);
+    put(&c, &bh, 8);
+    put(&c, &fh, 8);
     put(&c, &tsize, 4);
     put(&c, totals, totals_size);
     int32_t g[5] = {bg->n, bg->width, bg->height, bg->samples, bg->still_filled};

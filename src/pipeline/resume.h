@@ -60,10 +60,11 @@ int64_t sp_resume_pos(const sp_resume *r);
 int sp_resume_totals(const sp_resume *r, void *dst, size_t size, sp_error *err);
 /* Hand the saved background to the caller (who then owns its images); returns 0 on a fresh run. */
 int sp_resume_take_bg(sp_resume *r, sp_resume_bg *bg);
-/* Copy DIR/name (bubbles.csv or frames.csv, header included) as saved into dst. */
+/* Copy DIR/name (bubbles.csv or frames.csv, header included) into dst, checking its size and
+ * checksum against the checkpoint's. */
 int sp_resume_copy_table(sp_resume *r, const char *name, FILE *dst, sp_error *err);
-/* Feed the saved linker inputs to tr, checking the spill as it is read; then the spill is cut to
- * its valid length and reopened for appending. No-op on a fresh run. */
+/* Feed the saved linker inputs to tr, after checking the whole spill; with the first new frame the
+ * spill is cut to its valid length and appended to. No-op on a fresh run. */
 int sp_resume_replay(sp_resume *r, sp_trackrun *tr, sp_error *err);
 
 /* Fresh run: note the first analysed frame (input fingerprint). */

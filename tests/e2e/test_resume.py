@@ -143,7 +143,8 @@ if interrupted_run(argsA, outA, signal.SIGINT, "A"):
     damaged("resume.checkpoint", "truncate", "damaged checkpoint", "truncated checkpoint")
     damaged("resume.links", "flip", "damaged checkpoint", "spill with a flipped byte")
     damaged("resume.links", "truncate", "resume.links", "truncated spill")
-    damaged("bubbles.csv", "append", "changed since the interrupt", "edited bubbles.csv")
+    damaged("bubbles.csv", "append", "changed since the interrupt", "bubbles.csv with a row appended")
+    damaged("frames.csv", "flip", "changed since the interrupt", "frames.csv with a flipped byte")
 
     p = resume(argsA, outA, report=True)
     c.check(p.returncode == 0, f"A: resume exit 0 ({p.returncode}) {p.stderr.strip()}")
