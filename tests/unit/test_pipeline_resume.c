@@ -192,6 +192,77 @@ int main(void)
     snprintf(out, sizeof out, "%s/notrack", root);
     interrupted(frames, clean, out, "no tracking", 0, 0, 1, 0, 12, 16);
 
+    /* The checkpoint and the spill are untrusted: 300 damaged versions (one byte changed, or cut
+     * short, at pseudo-random places) are each refused with an input error naming the file, the
+     * tables are left alone, and the intact files still resume to the clean result. */
+    {
+        snprintf(clean, sizeof clean, "%s/clean", root);
+        snprintf(out, sizeof out, "%s/mutate", root);
+        sp_measure_settings ms;
+        stopper mst = {0, 12};
+        sp_measure_report mrep;
+        sp_error merr;
+        settings(&ms, &mst, 1, 0, 1, 0);
+        int mrc = sp_measure(frames, out, &ms, &mrep, &merr);
+        CHECK(mrc == 0 && !mrep.complete, "mutation base run stopped (%s)", mrc ? merr.msg : "");
+        size_t nck = 0, nln = 0, nbub = 0, nb2 = 0;
+        char *ck = slurp(out, "resume.checkpoint", &nck), *ln = slurp(out, "resume.links", &nln);
+        char *bub = slurp(out, "bubbles.csv", &nbub);
+        uint64_t x = 0x9e3779b97f4a7c15ULL;
+        int refused = 0, named = 0, untouched = 0;
+        for (int it = 0; ck && ln && bub && it < 300; it++) {
+            x ^= x << 13, x ^= x >> 7, x ^= x << 17; /* xorshift64 (Marsaglia 2003) */
+            int which = (int)(x % 3) == 0;           /* 1: the spill, else the checkpoint */
+            const char *name = which ? "resume.links" : "resume.checkpoint";
+            char *data = which ? ln : ck;
+            size_t n = which ? nln : nck, at = (size_t)((x >> 8) % n), len = n;
+            char fpath[512];
+            snprintf(fpath, sizeof fpath, "%s/%s", out, name);
+            FILE *f = fopen(fpath, "wb");
+            if (!f)
+                break;
+            if ((x >> 60) & 1) {
+                len = at; /* cut short */
+                fwrite(data, 1, len, f);
+            } else {
+                data[at] ^= (char)(1 + ((x >> 40) & 0x7f)); /* one byte changed */
+                fwrite(data, 1, n, f);
+                data[at] ^= (char)(1 + ((x >> 40) & 0x7f));
+            }
+            fclose(f);
+            ms.resume = 1;
+            mst.flag = 0;
+            mst.after = -1;
+            mrc = sp_measure(frames, out, &ms, &mrep, &merr);
+            refused += mrc == SP_ERR_INPUT;
+            named += mrc == SP_ERR_INPUT && strstr(merr.msg, name) != NULL;
+            char *now = slurp(out, "bubbles.csv", &nb2);
+            untouched += now && nb2 == nbub && memcmp(now, bub, nbub) == 0;
+            free(now);
+            f = fopen(fpath, "wb"); /* restore */
+            if (f) {
+                fwrite(data, 1, n, f);
+                fclose(f);
+            }
+            if (mrc == 0)
+                break; /* accepted damage: the check below reports it */
+        }
+        CHECK(refused == 300 && named == 300 && untouched == 300,
+              "damaged checkpoints: %d of 300 refused, %d naming the file, %d leaving bubbles.csv alone",
+              refused, named, untouched);
+        mst.flag = 0;
+        mst.after = -1;
+        ms.resume = 1;
+        mrc = sp_measure(frames, out, &ms, &mrep, &merr);
+        CHECK(mrc == 0 && mrep.complete, "intact checkpoint resumes after the damaged ones (%s)",
+              mrc ? merr.msg : "");
+        CHECK(same_file(out, clean, "tracks.csv") && same_file(out, clean, "bubbles.csv"),
+              "and gives the clean result");
+        free(ck);
+        free(ln);
+        free(bub);
+    }
+
     /* Resume of a finished run: refused, nothing removed. */
     sp_measure_settings s;
     stopper st = {0, -1};
