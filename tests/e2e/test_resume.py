@@ -191,4 +191,6 @@ if interrupted_run(argsC, outC, signal.SIGINT, "C"):
     p = resume(argsC, outC)
     c.check(p.returncode == 0, f"C: resume exit 0 ({p.returncode}) {p.stderr.strip()}")
     same_as_clean(outC, cleanC, "C")
+if not c.failed:
+    shutil.rmtree(work)  # several copies of the run: kept only for a failure's post-mortem
 c.done()
