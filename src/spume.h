@@ -182,6 +182,9 @@ typedef struct sp_measure_settings {
     int report;                  /* 1: write report.html with plots and overlay thumbnails (default 1) */
     int overlay_video;           /* 1: also write the annotated video overlay.mkv (default 0) */
 
+    int resume; /* 1: go on with the interrupted run in outdir (same input and options) and finish it;
+                   refused when outdir holds no checkpoint of an interrupted run (default 0) */
+
     int threads;              /* worker threads, 0 = OpenMP default */
     const volatile int *stop; /* may be NULL; when it becomes non-zero the run finishes the frames in
                                  hand and writes valid tables marked incomplete (an interrupt) */

@@ -75,6 +75,7 @@ static const char MEASURE_HELP[] =
     "  --overlay-video     also write overlay.mkv, every frame annotated\n"
     "Running\n"
     "  --threads N         worker threads (default all cores)\n"
+    "  --resume            go on with the interrupted run in DIR (same INPUT and options) and finish it\n"
     "  --quiet             no progress or summary on stderr\n"
     "  --json              print summary.json on stdout when done\n";
 
@@ -312,6 +313,8 @@ int cmd_measure(int argc, char **argv)
             s.threads = (int)n;
         } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
             quiet = 1;
+        } else if (!strcmp(a, "--resume")) {
+            s.resume = 1;
         } else if (a[0] == '-' && a[1]) {
             return usage_error(cmd, "unknown option '%s'", a);
         } else if (!input) {
@@ -350,7 +353,8 @@ int cmd_measure(int argc, char **argv)
     if (interrupted || !rep.complete) {
         fprintf(stderr,
                 "spume measure: interrupted after %lld frames: tables in %s are valid and marked incomplete "
-                "in summary.json (the next frame would be %lld)\n",
+                "in summary.json (the next frame would be %lld); to finish the run, repeat the command with "
+                "--resume\n",
                 (long long)rep.frames, out, (long long)rep.next_frame);
         return 130;
     }

@@ -9,6 +9,7 @@
 #include "detect/background.h"
 #include "detect/detect.h"
 #include "pipeline/identity.h"
+#include "pipeline/resume.h"
 #include "pipeline/tracking.h"
 #include "report/report.h"
 
@@ -414,6 +415,24 @@ static const char BUBBLE_HEADER[] =
     "d_area_mm,d_vol_mm,aspect,edge,split,major_px,minor_px,solidity,contrast,"
     "fit,cluster,sharpness_px_inv,in_focus,u_d_px,u_d_mm\n";
 
+/* The background in and out of a checkpoint (resume.c keeps the same fields). */
+static void bg_from_resume(bgset *b, const sp_resume_bg *r)
+{
+    b->n = r->n;
+    b->img = r->img;
+    b->centre = r->centre;
+    snprintf(b->mode, sizeof b->mode, "%s", r->mode);
+    b->samples = r->samples;
+    b->still_filled = r->still_filled;
+}
+
+static sp_resume_bg bg_to_resume(const bgset *b, int w, int h)
+{
+    sp_resume_bg r = {b->n, w, h, b->img, b->centre, "", b->samples, b->still_filled};
+    snprintf(r.mode, sizeof r.mode, "%s", b->mode);
+    return r;
+}
+
 static int write_summary(FILE *f, const char *input, const sp_measure_settings *s, const sp_source_info *info,
                          const bgset *bg, const totals *tot, double fps, const sp_trackrun *tr,
                          const sp_liquid *liq, const sp_calib_result *cal, sp_error *err)
@@ -693,6 +712,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     bgset bg = {0};
     sp_outfile ob = {0}, of = {0}, os = {0}, ot = {0}, oz = {0};
     sp_trackrun *tr = NULL;
+    sp_resume *rs = NULL;
     slot *slots = NULL;
     sp_detector **det = NULL;
     float **bgbuf = NULL;
@@ -707,11 +727,27 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     sp_liquid liq;
     if ((rc = load_liquid(s, &liq, err)))
         return rc;
+    if (s->resume && (rc = sp_resume_check(outdir, err)))
+        return rc;
     if ((rc = sp_outdir_prepare(outdir, err)))
         return rc;
     if ((rc = sp_source_open(&src, input, &s->source, err)))
         return rc;
     const sp_source_info *info = sp_source_get_info(src);
+    if ((rc = sp_resume_begin(&rs, input, outdir, s, &liq, info, err)))
+        goto done;
+    if (sp_resume_active(rs)) {
+        /* --resume: the checkpoint holds the totals so far; decoding goes on at the next frame. */
+        sp_source_opts ro;
+        sp_resume_source_opts(rs, &ro);
+        sp_source_close(src);
+        src = NULL;
+        if ((rc = sp_source_open(&src, input, &ro, err)) ||
+            (rc = sp_resume_totals(rs, &tot, sizeof tot, err)))
+            goto done;
+        info = sp_source_get_info(src);
+        tot.stopped = 0;
+    }
     const int w = info->width, h = info->height;
     if (have_cal && cal.radial.terms > 0 &&
         (cal.width != info->full_width || cal.height != info->full_height)) {
@@ -722,7 +758,10 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     }
     const size_t npx = (size_t)w * (size_t)h;
 
-    if (s->bg_image)
+    sp_resume_bg rbg;
+    if (sp_resume_take_bg(rs, &rbg))
+        bg_from_resume(&bg, &rbg);
+    else if (s->bg_image)
         rc = bg_from_file(s, w, h, &bg, err);
     else
         rc = bg_from_recording(input, s, info, &bg, err);
@@ -773,11 +812,19 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         if ((rc = sp_trackrun_new(&tr, &to, err)))
             goto done;
     }
+    if ((rc = sp_resume_replay(rs, tr, err)))
+        goto done;
     if ((rc = sp_outfile_open(&ob, outdir, "bubbles.csv", err)) ||
         (rc = sp_outfile_open(&of, outdir, "frames.csv", err)))
         goto done;
-    fputs(BUBBLE_HEADER, ob.f);
-    fputs("frame,t_s,bubbles,gain,level,gas_fraction,gas_volume_mm3\n", of.f);
+    if (sp_resume_active(rs)) {
+        if ((rc = sp_resume_copy_table(rs, "bubbles.csv", ob.f, err)) ||
+            (rc = sp_resume_copy_table(rs, "frames.csv", of.f, err)))
+            goto done;
+    } else {
+        fputs(BUBBLE_HEADER, ob.f);
+        fputs("frame,t_s,bubbles,gain,level,gas_fraction,gas_volume_mm3\n", of.f);
+    }
     const double sc = s->mm_per_px > 0 ? s->mm_per_px : 1.0;
     const double region_mm3 = s->illum_depth_mm > 0 ? (double)npx * sc * sc * s->illum_depth_mm : NAN;
 
@@ -794,7 +841,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     }
 
     double t0 = now_s();
-    int64_t pos = 0;
+    int64_t pos = sp_resume_pos(rs);
     fbatch bt[2] = {{slots, 0, 0, 0, {0}}, {slots + batch, 0, 0, 0, {0}}};
     int cur = 0;
     prod.src = src;
@@ -811,10 +858,14 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
             tot.stopped = 1;
             break;
         }
+        if (sp_resume_exhausted(rs))
+            break;
         slot *slots = bt[cur].slots;
         int nb = bt[cur].n;
         if (nb == 0)
             break;
+        if (pos == 0)
+            sp_resume_first_frame(rs, &slots[0].img);
         if (!bt[cur].end)
             producer_start(&prod, &bt[1 - cur]);
 #pragma omp parallel for num_threads(nthreads) schedule(dynamic, 1)
@@ -839,7 +890,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                 undistort_bubbles(sl, &cal, s->source.roi.w > 0 ? s->source.roi.x : 0,
                                   s->source.roi.h > 0 ? s->source.roi.y : 0);
             if (tr) {
-                if ((rc = sp_trackrun_frame(tr, sl->index, sl->t, sl->bub, sl->n, sl->ids, err)))
+                if ((rc = sp_resume_spill(rs, sl->index, sl->t, sl->bub, sl->n, err)) ||
+                    (rc = sp_trackrun_frame(tr, sl->index, sl->t, sl->bub, sl->n, sl->ids, err)))
                     goto done;
             } else {
                 for (int i = 0; i < sl->n; i++)
@@ -905,10 +957,20 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         goto done;
     if ((rc = write_summary(os.f, input, s, info, &bg, &tot, fps, tr, &liq, have_cal ? &cal : NULL, err)))
         goto done;
+    if (tot.stopped)
+        sp_resume_invalidate(rs); /* the old checkpoint would not match the new tables */
     if ((rc = sp_outfile_commit(&ob, err)) || (rc = sp_outfile_commit(&of, err)) ||
         (tr && ((rc = sp_outfile_commit(&ot, err)) || (rc = sp_outfile_commit(&oz, err)))) ||
         (rc = sp_outfile_commit(&os, err)))
         goto done;
+    if (tot.stopped) {
+        sp_resume_bg sb = bg_to_resume(&bg, w, h);
+        if ((rc = sp_resume_save(rs, &sb, pos, tot.last_index + (s->source.step > 0 ? s->source.step : 1),
+                                 &tot, sizeof tot, err)))
+            goto done;
+    } else {
+        sp_resume_done(rs);
+    }
     if (s->report && !tot.stopped) {
         /* The evidence: plots, tables and overlay thumbnails of what was measured. */
         sp_report_opts ro;
@@ -950,6 +1012,7 @@ done:
     sp_outfile_abort(&oz);
     sp_trackrun_free(tr);
     producer_wait(&prod); /* an error path may leave the decoder filling the other batch */
+    sp_resume_free(rs);
     if (slots)
         for (int k = 0; k < 2 * batch; k++) {
             sp_image_free(&slots[k].img);

@@ -201,6 +201,59 @@ if os.geteuid() == 0 and subprocess.run(["mount", "-t", "tmpfs", "-o", "size=16k
     finally:
         subprocess.run(["umount", small])
 
+# ---- measure --resume: an interrupted run (real SIGINT once detection is under way), then refusals.
+# "files left" lists the interrupted run's own tables, which every refusal must leave as they were.
+import glob
+import time
+
+plume = os.path.join(work, "plume")
+subprocess.run([spume, "synth", "plume", "--out", plume, "--frames", "80", "--no-png", "--quiet"], check=True)
+pv = os.path.join(plume, "video.mkv")
+run = os.path.join(work, "run")
+p = subprocess.Popen([spume, "measure", pv, "--out", run, "--no-report", "--quiet", "--threads", "1"],
+                     stderr=subprocess.DEVNULL)
+while p.poll() is None and not glob.glob(os.path.join(run, ".bubbles.csv.*.partial")):
+    time.sleep(0.01)
+time.sleep(0.3)
+p.send_signal(signal.SIGINT)
+p.wait()
+if p.returncode == 130:
+    def copy_run(name, edit=None):
+        d = os.path.join(work, name)
+        shutil.copytree(run, d)
+        if edit:
+            f, how = edit
+            b = bytearray(open(os.path.join(d, f), "rb").read())
+            if how == "flip":
+                b[len(b) // 2] ^= 0x40
+            elif how == "random":
+                b = bytearray(np.random.default_rng(9).bytes(4096))
+            else:
+                b = b[: len(b) // 3]
+            open(os.path.join(d, f), "wb").write(bytes(b))
+        return d
+
+    tryit("--resume, no such output folder", ["measure", pv, "--resume"], out=os.path.join(work, "nowhere"))
+    os.makedirs(os.path.join(work, "fresh"))
+    tryit("--resume, folder without a run", ["measure", pv, "--resume"], out=os.path.join(work, "fresh"))
+    done = os.path.join(work, "done")
+    subprocess.run([spume, "measure", pv, "--out", done, "--no-report", "--quiet"], check=True)
+    tryit("--resume, run complete already", ["measure", pv, "--resume"], out=done)
+    tryit("--resume with another option", ["measure", pv, "--resume", "--threshold", "0.6"], out=copy_run("r1"))
+    tryit("--resume on another input", ["measure", clip, "--resume"], out=copy_run("r2"))
+    tryit("--resume, checkpoint with one byte flipped", ["measure", pv, "--resume"],
+          out=copy_run("r3", ("resume.checkpoint", "flip")))
+    tryit("--resume, checkpoint cut to a third", ["measure", pv, "--resume"],
+          out=copy_run("r4", ("resume.checkpoint", "cut")))
+    tryit("--resume, linker spill with one byte flipped", ["measure", pv, "--resume"],
+          out=copy_run("r5", ("resume.links", "flip")))
+    tryit("--resume, bubbles.csv cut after the interrupt", ["measure", pv, "--resume"],
+          out=copy_run("r6", ("bubbles.csv", "cut")))
+    tryit("--resume, checkpoint replaced by random bytes", ["measure", pv, "--resume"],
+          out=copy_run("r7", ("resume.checkpoint", "random")))
+else:
+    rows.append(("--resume refusals", "measure ... --resume", "skipped", "the run was not interrupted", "none"))
+
 # ---- audio (listen)
 tryit("listen: video without an audio track", ["listen", clip])
 silent = os.path.join(work, "silent.wav")
