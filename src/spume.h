@@ -73,14 +73,17 @@ typedef struct sp_roi {
 } sp_roi;
 
 typedef struct sp_source_opts {
-    double fps;    /* > 0 overrides the container's rate; required for still frames */
-    int64_t start; /* first frame index to deliver (default 0) */
-    int64_t count; /* at most this many frames, 0 = all (default 0) */
-    int64_t step;  /* deliver every step-th frame (default 1) */
-    sp_roi roi;    /* crop applied to every delivered frame (default: whole frame) */
-    int sparse;    /* most frames will be passed over with sp_source_skip: a video whose codec codes
-                      every frame on its own is then decoded without frame threads, so that a frame
-                      passed over is not decoded at all (default 0) */
+    double fps;          /* > 0 overrides the container's rate; required for still frames */
+    int64_t start;       /* first frame index to deliver (default 0) */
+    int64_t count;       /* at most this many frames, 0 = all (default 0) */
+    int64_t step;        /* deliver every step-th frame (default 1) */
+    sp_roi roi;          /* crop applied to every delivered frame (default: whole frame) */
+    int sparse;          /* most frames will be passed over with sp_source_skip: a video whose codec codes
+                            every frame on its own is then decoded without frame threads, so that a frame
+                            passed over is not decoded at all (default 0) */
+    int64_t known_total; /* > 0: the recording's frame count, known from an earlier open of the same
+                            file, so a container that does not announce it is not counted again
+                            (default 0) */
 } sp_source_opts;
 
 void sp_source_opts_default(sp_source_opts *o);

@@ -130,7 +130,7 @@ int sp_source_open(sp_source **out, const char *path, const sp_source_opts *opts
     if (kind >= 0)
         rc = sp_stills_open(&s->stills, path, kind, &s->info, err);
     else
-        rc = sp_video_open(&s->video, path, o.sparse, &s->info, err);
+        rc = sp_video_open(&s->video, path, o.sparse, o.known_total, &s->info, err);
     if (rc)
         goto fail;
 

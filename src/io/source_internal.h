@@ -45,7 +45,8 @@ void sp_frameconv_free(sp_frameconv *c);
 /* ---- video back end (video.c). Opening decodes the first frame to learn the real frame format. */
 typedef struct sp_video sp_video;
 /* Fills info->full_width/full_height/bytes/bits/fps/frames_total/format. */
-int sp_video_open(sp_video **out, const char *path, int sparse, sp_source_info *info, sp_error *err);
+int sp_video_open(sp_video **out, const char *path, int sparse, int64_t known_total, sp_source_info *info,
+                  sp_error *err);
 /* Next frame of the recording. want == 0: the frame is decoded (as it must be) but not converted.
  * *t_s: best-effort timestamp relative to the first decoded frame. *got = 0 at the end. */
 int sp_video_next(sp_video *v, int want, sp_image *full, double *t_s, int *got, sp_error *err);

@@ -289,7 +289,8 @@ static double q2d_or0(AVRational r)
     return (r.num > 0 && r.den > 0) ? av_q2d(r) : 0.0;
 }
 
-int sp_video_open(sp_video **out, const char *path, int sparse, sp_source_info *info, sp_error *err)
+int sp_video_open(sp_video **out, const char *path, int sparse, int64_t known_total, sp_source_info *info,
+                  sp_error *err)
 {
     char eb[128];
     int rc = SP_OK;
@@ -388,7 +389,9 @@ int sp_video_open(sp_video **out, const char *path, int sparse, sp_source_info *
     info->bytes = v->bytes;
     /* Constant rate when the average and the container's base rate agree; else variable (0). */
     info->fps = (avg > 0 && rfr > 0 && fabs(avg - rfr) > 1e-3 * rfr) ? 0.0 : v->fps_guess;
-    info->frames_total = v->expected > 0 ? v->expected : count_packets(path, v->stream);
+    info->frames_total = v->expected > 0   ? v->expected
+                         : known_total > 0 ? known_total
+                                           : count_packets(path, v->stream);
     snprintf(info->kind, sizeof info->kind, "video");
     snprintf(info->format, sizeof info->format, "%s", codec->name);
     *out = v;

@@ -180,7 +180,8 @@ static int bg_from_recording(const char *input, const sp_measure_settings *s, co
         if ((rc = sp_bg_builder_new(&bld[k], w, h, bytes, per, err)))
             goto done;
     sp_source_opts so = s->source;
-    so.sparse = 1; /* most frames are passed over */
+    so.sparse = 1;                       /* most frames are passed over */
+    so.known_total = info->frames_total; /* counted once already, when the run opened it */
     if ((rc = sp_source_open(&src, input, &so, err)))
         goto done;
 
