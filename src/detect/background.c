@@ -269,12 +269,16 @@ int sp_bg_guard_still(float *bg, int w, int h, double level, double max_frac, in
     const size_t npx = (size_t)w * (size_t)h;
     const double sx = 2.0 / (w - 1), sy = 2.0 / (h - 1);
     double c[POLY_N] = {0};
+    /* A smooth quartic needs no more than some 3·10^4 points: large frames use a coarser grid. */
+    int grid = GUARD_GRID;
+    while (grid < 64 && (double)w * h / ((double)grid * grid) > 32768)
+        grid *= 2;
     /* Robust fit: all grid points first, then only those not more than 10 % below the surface. */
     for (int it = 0; it < 5; it++) {
         double A[POLY_N][POLY_N] = {{0}}, b[POLY_N] = {0}, t[POLY_N], cn[POLY_N];
         long used = 0;
-        for (int y = GUARD_GRID / 2; y < h; y += GUARD_GRID)
-            for (int x = GUARD_GRID / 2; x < w; x += GUARD_GRID) {
+        for (int y = grid / 2; y < h; y += grid)
+            for (int x = grid / 2; x < w; x += grid) {
                 double v = bg[(size_t)y * w + x], X = x * sx - 1, Y = y * sy - 1;
                 if (it > 0 && v < 0.9 * poly_at(c, X, Y))
                     continue;
