@@ -284,6 +284,67 @@ done:
     return n;
 }
 
+/* The frame count of a stream whose codec codes every frame on its own and whose index lists frames
+ * 0..n-1 at one constant step from the first (rawvideo in NUT): the index's entries, plus the packets
+ * after the last entry, read from there to the end on the same grid. Reads only the tail of the file
+ * where counting every packet would read all of it. -1 when the index does not qualify. */
+static int64_t count_by_index(const char *path, int stream)
+{
+    AVFormatContext *fmt = NULL;
+    AVPacket *pkt = NULL;
+    int64_t n = -1;
+    if (avformat_open_input(&fmt, path, NULL, NULL) < 0 || avformat_find_stream_info(fmt, NULL) < 0 ||
+        stream >= (int)fmt->nb_streams)
+        goto done;
+    AVStream *st = fmt->streams[stream];
+    const AVCodecDescriptor *desc = avcodec_descriptor_get(st->codecpar->codec_id);
+    int ne = avformat_index_get_entries_count(st);
+    if (!desc || !(desc->props & AV_CODEC_PROP_INTRA_ONLY) || ne < 2 || !(pkt = av_packet_alloc()))
+        goto done;
+    const AVIndexEntry *e0 = avformat_index_get_entry(st, 0), *e1 = avformat_index_get_entry(st, 1);
+    if (!e0 || !e1 || e1->timestamp <= e0->timestamp)
+        goto done;
+    int64_t t0 = e0->timestamp, dur = e1->timestamp - e0->timestamp;
+    for (int i = 2; i < ne; i++) {
+        const AVIndexEntry *e = avformat_index_get_entry(st, i);
+        if (!e || e->timestamp != t0 + (int64_t)i * dur)
+            goto done;
+    }
+    /* The first packet must be frame 0 of the grid. */
+    int ret;
+    while ((ret = av_read_frame(fmt, pkt)) >= 0 && pkt->stream_index != stream)
+        av_packet_unref(pkt);
+    if (ret < 0 || pkt->pts != t0)
+        goto done;
+    av_packet_unref(pkt);
+    int64_t last = t0 + (int64_t)(ne - 1) * dur;
+    if (av_seek_frame(fmt, stream, last, AVSEEK_FLAG_BACKWARD) < 0)
+        goto done;
+    int64_t k = -1; /* grid position of the last packet read */
+    for (;;) {
+        ret = av_read_frame(fmt, pkt);
+        if (ret == AVERROR_EOF)
+            break;
+        if (ret < 0)
+            goto done;
+        int ours = pkt->stream_index == stream;
+        int64_t pts = pkt->pts;
+        av_packet_unref(pkt);
+        if (!ours)
+            continue;
+        if (pts == AV_NOPTS_VALUE || (pts - t0) % dur != 0 || (k >= 0 && pts != t0 + (k + 1) * dur) ||
+            (k < 0 && pts != last))
+            goto done; /* off the grid, a gap, or the seek landed elsewhere */
+        k = (pts - t0) / dur;
+    }
+    if (k >= ne - 1)
+        n = k + 1;
+done:
+    av_packet_free(&pkt);
+    avformat_close_input(&fmt);
+    return n;
+}
+
 static double q2d_or0(AVRational r)
 {
     return (r.num > 0 && r.den > 0) ? av_q2d(r) : 0.0;
@@ -389,9 +450,12 @@ int sp_video_open(sp_video **out, const char *path, int sparse, int64_t known_to
     info->bytes = v->bytes;
     /* Constant rate when the average and the container's base rate agree; else variable (0). */
     info->fps = (avg > 0 && rfr > 0 && fabs(avg - rfr) > 1e-3 * rfr) ? 0.0 : v->fps_guess;
-    info->frames_total = v->expected > 0   ? v->expected
-                         : known_total > 0 ? known_total
-                                           : count_packets(path, v->stream);
+    if (v->expected > 0)
+        info->frames_total = v->expected;
+    else if (known_total > 0)
+        info->frames_total = known_total;
+    else if ((info->frames_total = count_by_index(path, v->stream)) < 0)
+        info->frames_total = count_packets(path, v->stream);
     snprintf(info->kind, sizeof info->kind, "video");
     snprintf(info->format, sizeof info->format, "%s", codec->name);
     *out = v;
