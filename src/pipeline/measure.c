@@ -925,7 +925,9 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
         }
         pos += nb;
         if (s->progress) {
-            sp_progress p = {"detect", pos, info->frames_selected, now_s() - t0};
+            /* A resumed run's source holds only the frames left: count those done before too. */
+            int64_t total = info->frames_selected > 0 ? info->frames_selected + sp_resume_pos(rs) : -1;
+            sp_progress p = {"detect", pos, total, now_s() - t0};
             s->progress(s->progress_ud, &p);
         }
         if (bt[cur].end)
