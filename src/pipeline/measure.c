@@ -354,6 +354,22 @@ typedef struct totals {
     int stopped; /* the run was stopped before the end of the selection */
 } totals;
 
+/* Totals read back from a checkpoint: counts that agree with the frames done and sums that are
+ * finite and not negative, so carrying on cannot overflow them or print nonsense. */
+static int totals_plausible(const totals *t, int64_t frames_done)
+{
+    const int64_t cap = (int64_t)1 << 52; /* far above any real count, far below overflow */
+    int ok = t->frames == frames_done && t->frames >= 0 && t->detections >= 0 && t->detections < cap &&
+             t->used >= 0 && t->used <= t->detections && t->n_u >= 0 && t->n_u <= t->detections &&
+             t->last_index >= 0 && t->last_index < cap;
+    const double sums[] = {t->s1, t->s2, t->s3, t->s4, t->holdup_sum, t->su2};
+    for (size_t i = 0; ok && i < sizeof sums / sizeof sums[0]; i++)
+        ok = isfinite(sums[i]) && sums[i] >= 0 && sums[i] < 1e300;
+    /* The volume sum is NaN when no illuminated depth was given. */
+    ok = ok && (isnan(t->volume_sum) || (isfinite(t->volume_sum) && t->volume_sum >= 0));
+    return ok && isfinite(t->t_first) && isfinite(t->t_last) && t->t_first <= t->t_last;
+}
+
 static void write_bubble_rows(FILE *f, const slot *sl, const sp_measure_settings *s,
                               const sp_source_info *info, double rel_u_scale, totals *tot)
 {
@@ -748,6 +764,14 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
             goto done;
         info = sp_source_get_info(src);
         tot.stopped = 0;
+        if (!totals_plausible(&tot, sp_resume_pos(rs))) {
+            rc = sp_error_set(
+                err, SP_ERR_INPUT,
+                "%s/resume.checkpoint: its running totals do not fit the %lld frames it says were "
+                "done (damaged?)",
+                outdir, (long long)sp_resume_pos(rs));
+            goto done;
+        }
     }
     const int w = info->width, h = info->height;
     if (have_cal && cal.radial.terms > 0 &&
