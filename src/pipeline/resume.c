@@ -705,8 +705,16 @@ static int spill_pass(sp_resume *r, FILE *f, sp_trackrun *tr, sp_error *err)
         h = fnv(h, b, sizeof *b * (size_t)hd.n);
         last = hd.frame;
         frames++;
-        if (tr && (rc = sp_trackrun_frame(tr, hd.frame, hd.t_s, b, hd.n, ids, err)))
+        if (tr && (rc = sp_trackrun_frame(tr, hd.frame, hd.t_s, b, hd.n, ids, err))) {
+            /* The linker's own checks (finite, plausible values) can refuse a record whose checksum
+             * agrees (written on purpose, not damaged): the message must still name the spill. */
+            if (rc == SP_ERR_INPUT) {
+                char why[512];
+                snprintf(why, sizeof why, "%.500s", err->msg);
+                rc = damaged(err, path, why);
+            }
             goto done;
+        }
     }
     if (h != r->spill_hash || frames != r->pos)
         rc = damaged(err, path, "checksum mismatch");
