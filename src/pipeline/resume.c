@@ -193,6 +193,11 @@ static int text_diff(const char *was, const char *now, char *msg, size_t size)
             int lvb = vb ? (int)(lb - (size_t)(vb - now) - 1) : (int)lb;
             snprintf(msg, size, "%.*s was '%.*s', now '%.*s'", kl, was, lva > 200 ? 200 : lva, va,
                      lvb > 200 ? 200 : lvb, vb ? vb + 1 : now);
+            /* The saved text is untrusted: no control character (a terminal escape, a carriage
+             * return) reaches the one-line message. */
+            for (char *c = msg; *c; c++)
+                if ((unsigned char)*c < 0x20 || *c == 0x7f)
+                    *c = '?';
             return 1;
         }
         was += la + (ea != NULL);
