@@ -21,9 +21,9 @@
  * names the file replaced (with fixed checksums the checkpoint's records of the spill and the tables
  * may put the blame on those, so any of the four files then), and leaves the directory exactly as it was
  * (every file's bytes, no file added); an acceptance completes the run (tables written, both resume files
- * removed). The same code runs in the ordinary suite through tests/tools/pipeline_fuzz_replay.c;
- * with SPUME_FUZZ_DUMP_SEEDS=DIR set, the first call writes the four seeds (each selector with its
- * pristine file) into DIR. */
+ * removed), and the pristine files themselves must be accepted. The same code runs in the ordinary suite
+ * through tests/tools/pipeline_fuzz_replay.c; with SPUME_FUZZ_DUMP_SEEDS=DIR set, the first call writes the
+ * four seeds (each selector with its pristine file) into DIR. */
 #include "fuzz_common.h"
 
 #include <dirent.h>
@@ -343,6 +343,12 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         }
     }
     free(buf);
+    /* The pristine file itself (under either checksum rule) must resume: refusing everything would
+     * pass every other check. */
+    int pristine = 0;
+    for (int i = 0; i < ckf.npristine; i++)
+        if (!strcmp(ckf.pristine[i].name, which ? "resume.links" : "resume.checkpoint"))
+            pristine = ckf.pristine[i].size == n && !memcmp(ckf.pristine[i].data, in, n);
     ckf.nbefore = ckf_list(ckf.run, ckf.before, CKF_MAXF);
 
     sp_measure_settings s;
@@ -356,6 +362,10 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 
     ckf_file after[CKF_MAXF];
     int nafter = ckf_list(ckf.run, after, CKF_MAXF);
+    if (rc != SP_OK && pristine) {
+        fprintf(stderr, "contract: the intact interrupted run was refused: %s\n", err.msg);
+        abort();
+    }
     if (rc != SP_OK) {
         ckf_contract(rc, &err, which, fixed);
         int same = nafter == ckf.nbefore;
