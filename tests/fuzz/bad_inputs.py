@@ -233,6 +233,14 @@ if p.returncode == 130:
                 i = b.index(b"threshold=") + len(b"threshold=")
                 b[i:i + 4] = b"\x1b[2J"[:4]
                 fnv_fix(b)
+            elif how == "totals":
+                # The saved frame count (first field of the running totals, after the text blocks,
+                # v[6], three hashes and the totals' size) set to the largest int64, checksum agreeing.
+                v = 20
+                for _ in range(2):
+                    v += 4 + struct.unpack_from("<I", b, v)[0]
+                struct.pack_into("<q", b, v + 76, 2**63 - 1)
+                fnv_fix(b)
             elif how == "nan":
                 # The first detection's x made NaN in the spill, with the checkpoint's record of the
                 # spill (its FNV-1a) and the checkpoint's own checksum made to agree.
@@ -283,6 +291,8 @@ if p.returncode == 130:
           out=copy_run("r7", ("resume.checkpoint", "random")))
     tryit("--resume, checkpoint with an escape sequence in a setting, checksum made to agree",
           ["measure", pv, "--resume"], out=copy_run("r8", ("resume.checkpoint", "escape")))
+    tryit("--resume, checkpoint whose saved frame count is 2^63-1, checksum made to agree",
+          ["measure", pv, "--resume"], out=copy_run("r10", ("resume.checkpoint", "totals")))
     tryit("--resume, spill with a NaN position, checksums made to agree", ["measure", pv, "--resume"],
           out=copy_run("r9", ("resume.links", "nan")))
 else:
