@@ -4,7 +4,8 @@
 #
 # Usage: scripts/fuzz.sh [-t SECONDS] [-j JOBS] [TARGET...]
 #   -t  seconds per target (default 60); TARGET names like fuzz_png (default: all)
-# Seeds: generated here (tiny valid files of each format, made with ffmpeg and Pillow), plus anything
+# Seeds: generated here (tiny valid files of each format, made with ffmpeg and Pillow; fuzz_checkpoint
+# writes its own from a real interrupted run), plus anything
 # under fixtures/fuzz/<target>/ and fixtures/fuzz-regress/<target>/. Crashes land in
 # build-fuzz/crashes/<target>/; copy a fixed one to fixtures/fuzz-regress/<target>/ so that
 # tests/ref/test_fuzz_regress.py replays it in the ordinary suite. Exit status: 1 if any target found
@@ -22,7 +23,7 @@ while getopts "t:j:" opt; do
   esac
 done
 shift $((OPTIND - 1))
-all=(fuzz_png fuzz_jpeg fuzz_ffimage fuzz_video fuzz_audio fuzz_calfile fuzz_liquid)
+all=(fuzz_png fuzz_jpeg fuzz_ffimage fuzz_video fuzz_audio fuzz_calfile fuzz_liquid fuzz_checkpoint)
 targets=("$@")
 [ ${#targets[@]} -gt 0 ] || targets=("${all[@]}")
 py=/usr/bin/python3
@@ -30,9 +31,13 @@ py=/usr/bin/python3
 # ---- library, instrumented for coverage (fuzzer-no-link) and sanitizers
 san="-fsanitize=fuzzer-no-link,address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer -g"
 CC=clang cmake -S "$here" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_C_FLAGS="$san" >/dev/null
-# Only the layers the chosen targets link are built (the calibration reader pulls in detect).
+# Only the layers the chosen targets link are built (the calibration reader pulls in detect; the
+# resume readers are driven through sp_measure, which pulls in every layer of the pipeline).
 need=(spume_core spume_io spume_physics)
-for t in "${targets[@]}"; do [ "$t" = fuzz_calfile ] && need+=(spume_detect spume_calib); done
+for t in "${targets[@]}"; do
+  [ "$t" = fuzz_calfile ] && need+=(spume_detect spume_calib)
+  [ "$t" = fuzz_checkpoint ] && need+=(spume_detect spume_calib spume_stats spume_track spume_report spume_pipeline)
+done
 cmake --build "$build" -j"$(nproc)" --target "${need[@]}" >/dev/null
 
 syslibs=$(pkg-config --libs libavformat libavcodec libavutil libswscale libswresample jansson libpng libjpeg)
@@ -41,6 +46,9 @@ for t in "${targets[@]}"; do
   [ -f "$src" ] || { echo "fuzz: no target $t" >&2; exit 2; }
   libs=("$build/libspume_io.a" "$build/libspume_physics.a" "$build/libspume_core.a")
   [ "$t" = fuzz_calfile ] && libs=("$build/libspume_calib.a" "$build/libspume_detect.a" "${libs[@]}")
+  [ "$t" = fuzz_checkpoint ] && libs=("$build/libspume_pipeline.a" "$build/libspume_report.a"
+    "$build/libspume_calib.a" "$build/libspume_track.a" "$build/libspume_detect.a" "$build/libspume_stats.a"
+    "${libs[@]}")
   if [ ! -x "$build/$t" ] || [ "$src" -nt "$build/$t" ] || [ "$here/tests/fuzz/fuzz_common.h" -nt "$build/$t" ] ||
      [ -n "$(find "${libs[@]}" -newer "$build/$t" 2>/dev/null)" ]; then
     # shellcheck disable=SC2086
@@ -111,6 +119,17 @@ PY
   ff -f lavfi -i "$a" -c:a pcm_s16le -f matroska "$seeds/fuzz_audio/pcm.mka"
   touch "$seeds/.done"
 fi
+# fuzz_checkpoint makes its own interrupted run; its seeds are that run's pristine resume files (each
+# with the four selector bytes), written by the target itself on a first, empty input.
+for t in "${targets[@]}"; do
+  if [ "$t" = fuzz_checkpoint ] && [ ! -f "$seeds/fuzz_checkpoint/.done" ]; then
+    mkdir -p "$seeds/fuzz_checkpoint"
+    : > "$build/empty-input"
+    SPUME_FUZZ_DUMP_SEEDS="$seeds/fuzz_checkpoint" ASAN_OPTIONS=detect_leaks=1 \
+      "$build/fuzz_checkpoint" "$build/empty-input" > "$build/fuzz_checkpoint.seeds.log" 2>&1
+    touch "$seeds/fuzz_checkpoint/.done"
+  fi
+done
 
 # ---- run
 status=0

@@ -193,6 +193,11 @@ static int text_diff(const char *was, const char *now, char *msg, size_t size)
             int lvb = vb ? (int)(lb - (size_t)(vb - now) - 1) : (int)lb;
             snprintf(msg, size, "%.*s was '%.*s', now '%.*s'", kl, was, lva > 200 ? 200 : lva, va,
                      lvb > 200 ? 200 : lvb, vb ? vb + 1 : now);
+            /* The saved text is untrusted: no control character (a terminal escape, a carriage
+             * return) reaches the one-line message. */
+            for (char *c = msg; *c; c++)
+                if ((unsigned char)*c < 0x20 || *c == 0x7f)
+                    *c = '?';
             return 1;
         }
         was += la + (ea != NULL);
@@ -705,8 +710,16 @@ static int spill_pass(sp_resume *r, FILE *f, sp_trackrun *tr, sp_error *err)
         h = fnv(h, b, sizeof *b * (size_t)hd.n);
         last = hd.frame;
         frames++;
-        if (tr && (rc = sp_trackrun_frame(tr, hd.frame, hd.t_s, b, hd.n, ids, err)))
+        if (tr && (rc = sp_trackrun_frame(tr, hd.frame, hd.t_s, b, hd.n, ids, err))) {
+            /* The linker's own checks (finite, plausible values) can refuse a record whose checksum
+             * agrees (written on purpose, not damaged): the message must still name the spill. */
+            if (rc == SP_ERR_INPUT) {
+                char why[512];
+                snprintf(why, sizeof why, "%.500s", err->msg);
+                rc = damaged(err, path, why);
+            }
             goto done;
+        }
     }
     if (h != r->spill_hash || frames != r->pos)
         rc = damaged(err, path, "checksum mismatch");

@@ -228,10 +228,48 @@ if p.returncode == 130:
                 b[len(b) // 2] ^= 0x40
             elif how == "random":
                 b = bytearray(np.random.default_rng(9).bytes(4096))
+            elif how == "escape":
+                # An escape sequence in a saved setting, the checksum made to agree (see fnv_fix).
+                i = b.index(b"threshold=") + len(b"threshold=")
+                b[i:i + 4] = b"\x1b[2J"[:4]
+                fnv_fix(b)
+            elif how == "totals":
+                # The saved frame count (first field of the running totals, after the text blocks,
+                # v[6], three hashes and the totals' size) set to the largest int64, checksum agreeing.
+                v = 20
+                for _ in range(2):
+                    v += 4 + struct.unpack_from("<I", b, v)[0]
+                struct.pack_into("<q", b, v + 76, 2**63 - 1)
+                fnv_fix(b)
+            elif how == "nan":
+                # The first detection's x made NaN in the spill, with the checkpoint's record of the
+                # spill (its FNV-1a) and the checkpoint's own checksum made to agree.
+                off = 0
+                while struct.unpack_from("<i", b, off + 16)[0] == 0:
+                    off += 24
+                b[off + 24:off + 32] = struct.pack("<d", float("nan"))
+                ck = bytearray(open(os.path.join(d, "resume.checkpoint"), "rb").read())
+                v = 20
+                for _ in range(2):
+                    v += 4 + struct.unpack_from("<I", ck, v)[0]
+                struct.pack_into("<Q", ck, v + 48, fnv(bytes(b)))
+                fnv_fix(ck)
+                open(os.path.join(d, "resume.checkpoint"), "wb").write(bytes(ck))
             else:
                 b = b[: len(b) // 3]
             open(os.path.join(d, f), "wb").write(bytes(b))
         return d
+
+    def fnv(data):
+        """FNV-1a 64 (Fowler, Noll, Vo), the checksum resume.c uses."""
+        h = 0xCBF29CE484222325
+        for c in data:
+            h = ((h ^ c) * 0x100000001B3) & 0xFFFFFFFFFFFFFFFF
+        return h
+
+    def fnv_fix(b):
+        """A checkpoint's last 8 bytes: FNV-1a 64 of every byte before them (native order, here little)."""
+        struct.pack_into("<Q", b, len(b) - 8, fnv(bytes(b[:-8])))
 
     tryit("--resume, no such output folder", ["measure", pv, "--resume"], out=os.path.join(work, "nowhere"))
     os.makedirs(os.path.join(work, "fresh"))
@@ -251,6 +289,12 @@ if p.returncode == 130:
           out=copy_run("r6", ("bubbles.csv", "cut")))
     tryit("--resume, checkpoint replaced by random bytes", ["measure", pv, "--resume"],
           out=copy_run("r7", ("resume.checkpoint", "random")))
+    tryit("--resume, checkpoint with an escape sequence in a setting, checksum made to agree",
+          ["measure", pv, "--resume"], out=copy_run("r8", ("resume.checkpoint", "escape")))
+    tryit("--resume, checkpoint whose saved frame count is 2^63-1, checksum made to agree",
+          ["measure", pv, "--resume"], out=copy_run("r10", ("resume.checkpoint", "totals")))
+    tryit("--resume, spill with a NaN position, checksums made to agree", ["measure", pv, "--resume"],
+          out=copy_run("r9", ("resume.links", "nan")))
 else:
     rows.append(("--resume refusals", "measure ... --resume", "skipped", "the run was not interrupted", "none"))
 

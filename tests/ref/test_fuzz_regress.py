@@ -1,11 +1,13 @@
 """Replays hostile inputs through the fuzz targets (tests/fuzz/fuzz_*.c, built without libFuzzer into
-probe_acoustic_fuzz_replay and probe_calib_fuzz_replay) and demands a clean answer for each: exit 0,
+probe_acoustic_fuzz_replay, probe_calib_fuzz_replay and probe_pipeline_fuzz_replay) and demands a clean answer for each: exit 0,
 meaning every file was read or refused within the error contract (status 1/2, one line naming the
 file). A crash, a sanitizer report (in the build-asan suite) or an abort on a broken contract fails.
 
 Inputs: every file under fixtures/fuzz-regress/<target>/ (inputs the fuzzer once crashed on, kept
 after the fix), plus damaged copies of small valid files made here with Pillow and ffmpeg: truncated
-at several lengths and with bytes overwritten at seeded positions."""
+at several lengths and with bytes overwritten at seeded positions. The checkpoint target's valid
+files are its own: the probe writes them (SPUME_FUZZ_DUMP_SEEDS) from the interrupted run it makes;
+their first byte (the harness's selector) is kept intact in the damaged copies."""
 import argparse
 import os
 import subprocess
@@ -18,9 +20,10 @@ from PIL import Image
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(os.path.dirname(HERE))
 REGRESS = os.path.join(ROOT, "fixtures", "fuzz-regress")
+BUILD = None
 
 PROBE = {"png": "acoustic", "jpeg": "acoustic", "ffimage": "acoustic", "video": "acoustic",
-         "audio": "acoustic", "liquid": "acoustic", "calfile": "calib"}
+         "audio": "acoustic", "liquid": "acoustic", "calfile": "calib", "checkpoint": "pipeline"}
 
 
 def valid_seeds(d):
@@ -66,6 +69,15 @@ def valid_seeds(d):
     open(p, "w").write('{"name": "oil", "model": "fixed", "temp_c": 20, "rho_kg_m3": 870, '
                        '"mu_pa_s": 0.05, "sigma_n_m": 0.03}')
     out["liquid"].append(p)
+    sd = os.path.join(d, "ckseeds")
+    os.mkdir(sd)
+    empty = os.path.join(d, "empty-input")
+    open(empty, "wb").close()
+    subprocess.run([os.path.join(BUILD, "probe_pipeline_fuzz_replay"), "checkpoint", empty], check=True,
+                   capture_output=True, env=dict(os.environ, SPUME_FUZZ_DUMP_SEEDS=sd), timeout=600)
+    out["checkpoint"] = sorted(os.path.join(sd, f) for f in os.listdir(sd))
+    if len(out["checkpoint"]) != 4:
+        raise SystemExit(f"checkpoint seeds: expected 4, got {out['checkpoint']}")
     return out
 
 
@@ -73,16 +85,17 @@ def damaged(path, d, rng):
     """Truncations and seeded byte overwrites of one valid file."""
     data = open(path, "rb").read()
     base = os.path.basename(path)
+    keep = 1 if base.startswith("seed-") else 0  # the checkpoint target's selector byte
     made = []
     for frac in (0.1, 0.5, 0.9):
         p = os.path.join(d, f"trunc{int(frac * 100)}-{base}")
-        open(p, "wb").write(data[: max(1, int(len(data) * frac))])
+        open(p, "wb").write(data[: max(1 + keep, int(len(data) * frac))])
         made.append(p)
     for k in range(4):
         b = bytearray(data)
         # Headers hold the sizes: half the hits land in the first 64 bytes.
         for _ in range(4):
-            i = int(rng.integers(0, min(64, len(b)))) if rng.random() < 0.5 else int(rng.integers(0, len(b)))
+            i = int(rng.integers(keep, min(64, len(b)))) if rng.random() < 0.5 else int(rng.integers(keep, len(b)))
             b[i] = int(rng.choice([0x00, 0xFF, 0x7F, 0x80, int(rng.integers(0, 256))]))
         p = os.path.join(d, f"flip{k}-{base}")
         open(p, "wb").write(bytes(b))
@@ -98,7 +111,8 @@ def run(build, target, files):
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--build", required=True)
-    build = os.path.abspath(ap.parse_args().build)
+    global BUILD
+    build = BUILD = os.path.abspath(ap.parse_args().build)
     passed = failed = 0
     rng = np.random.default_rng(2026)
     with tempfile.TemporaryDirectory(prefix="spume-fuzzregress-") as d:
