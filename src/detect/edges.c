@@ -1,6 +1,8 @@
 /* Sub-pixel outline of one labelled component; the method is described in edges.h. */
 #include "detect/edges.h"
 
+#include "detect/select.h"
+
 #include <math.h>
 #include <stdint.h>
 #include <stdlib.h>
@@ -153,9 +155,6 @@ static inline int ext_at(const sp_edges *e, int x, int y)
     return e->ext[(size_t)wy * e->ww + wx];
 }
 
-/* The k-th smallest of v[0..n) by Hoare's quickselect (in place). */
-static float select_k(float *v, size_t n, size_t k);
-
 #define QBINS 1024 /* transmission bins over [0, 2) for the quantile's first pass */
 
 /* q-quantile (0..1): the element of rank round(q·(n−1)), exact. Large arrays go through a histogram
@@ -167,7 +166,7 @@ static float quantile(float *v, size_t n, double q)
     if (k >= n)
         k = n - 1;
     if (n < 256)
-        return select_k(v, n, k);
+        return sp_select_float(v, n, k);
     uint32_t hist[QBINS];
     memset(hist, 0, sizeof hist);
     for (size_t i = 0; i < n; i++) {
@@ -190,42 +189,7 @@ static float quantile(float *v, size_t n, double q)
             v[i] = t;
         }
     }
-    return select_k(v, m, k - below);
-}
-
-static float select_k(float *v, size_t n, size_t k)
-{
-    /* Hoare's quickselect: the k-th order statistic without sorting (the result equals the sorted
-     * array's element k, so it is as deterministic as the sort was). */
-    size_t lo = 0, hi = n - 1;
-    while (hi > lo) {
-        size_t mid = lo + (hi - lo) / 2;
-        float a = v[lo], b = v[mid], c = v[hi];
-        float piv = a < b ? (b < c ? b : (a < c ? c : a)) : (a < c ? a : (b < c ? c : b));
-        size_t i = lo, j = hi;
-        while (i <= j) {
-            while (v[i] < piv)
-                i++;
-            while (v[j] > piv)
-                j--;
-            if (i <= j) {
-                float t = v[i];
-                v[i] = v[j];
-                v[j] = t;
-                i++;
-                if (j == 0)
-                    break;
-                j--;
-            }
-        }
-        if (k <= j && j < i)
-            hi = j;
-        else if (k >= i)
-            lo = i;
-        else
-            return v[k];
-    }
-    return v[k];
+    return sp_select_float(v, m, k - below);
 }
 
 int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,

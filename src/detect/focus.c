@@ -1,6 +1,8 @@
 /* Outline sharpness for the depth-of-field flag; the definition is in focus.h. */
 #include "detect/focus.h"
 
+#include "detect/select.h"
+
 #include <math.h>
 #include <stdlib.h>
 
@@ -40,35 +42,6 @@ static float normal_width(const frame *f, double x, double y, float wid, int dx,
     return (float)(wd * cs);
 }
 
-/* The k-th smallest of v[0..m) (Hoare's quickselect, in place). */
-static float select_k(float *v, int m, int k)
-{
-    int lo = 0, hi = m - 1;
-    while (hi > lo) {
-        float a = v[lo], b = v[lo + (hi - lo) / 2], c = v[hi];
-        float piv = a < b ? (b < c ? b : (a < c ? c : a)) : (a < c ? a : (b < c ? c : b));
-        int i = lo, j = hi;
-        while (i <= j) {
-            while (v[i] < piv)
-                i++;
-            while (v[j] > piv)
-                j--;
-            if (i <= j) {
-                float t = v[i];
-                v[i++] = v[j];
-                v[j--] = t;
-            }
-        }
-        if (k <= j)
-            hi = j;
-        else if (k >= i)
-            lo = i;
-        else
-            return v[k];
-    }
-    return v[k];
-}
-
 /* The sharp flank of the outline: the lower quartile of the widths. Defocus widens every part of
  * the outline alike, motion blur only the parts facing the motion, so the flanks along the velocity
  * keep a moving bubble that is in focus sharp. */
@@ -78,7 +51,7 @@ static double median_sharp(float *v, int m)
         return 0;
     double pos = 0.25 * (m - 1);
     int k = (int)pos;
-    double q = select_k(v, m, k);
+    double q = sp_select_float(v, (size_t)m, (size_t)k);
     if (k + 1 < m) {
         /* After the selection everything above index k is at least v[k]: the next order statistic is
          * the smallest of them. */

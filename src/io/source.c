@@ -182,7 +182,11 @@ static int crop(const sp_image *src, const sp_roi *r, sp_image *dst, sp_error *e
     return SP_OK;
 }
 
-int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int *got, sp_error *err)
+/* The next selected frame: delivered into img (deliver = 1) or passed over without its pixels and,
+ * where the format allows, without decoding it (deliver = 0). Frames outside the selection are
+ * always passed over. */
+static int advance(sp_source *s, int deliver, sp_image *img, int64_t *index, double *t_s, int *got,
+                   sp_error *err)
 {
     *got = 0;
     if (s->failed)
@@ -193,12 +197,13 @@ int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int
             return SP_OK;
         int64_t idx = s->next_index;
         int want = idx >= o->start && (idx - o->start) % o->step == 0;
+        int read = want && deliver;
         double t = 0;
         int g = 0, rc;
         if (s->video)
-            rc = want ? sp_video_next(s->video, 1, &s->full, &t, &g, err) : sp_video_skip(s->video, &g, err);
+            rc = read ? sp_video_next(s->video, 1, &s->full, &t, &g, err) : sp_video_skip(s->video, &g, err);
         else
-            rc = sp_stills_next(s->stills, want, &s->full, &g, err);
+            rc = sp_stills_next(s->stills, read, &s->full, &g, err);
         if (rc) {
             s->failed = 1;
             return rc;
@@ -208,61 +213,38 @@ int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int
         s->next_index++;
         if (!want)
             continue;
-        /* The rate override (and every still sequence) times frames as index / fps. */
-        if (o->fps > 0)
-            t = (double)idx / o->fps;
-        if (o->roi.x == 0 && o->roi.y == 0 && o->roi.w == s->full.width && o->roi.h == s->full.height) {
-            /* Whole frame: hand the buffer over instead of copying it (the back end reuses or
-             * reallocates whatever it gets back). */
-            sp_image t = *img;
-            *img = s->full;
-            s->full = t;
-            rc = SP_OK;
-        } else {
-            rc = crop(&s->full, &o->roi, img, err);
-        }
-        if (rc) {
-            s->failed = 1;
-            return rc;
+        if (read) {
+            /* The rate override (and every still sequence) times frames as index / fps. */
+            if (o->fps > 0)
+                t = (double)idx / o->fps;
+            if (o->roi.x == 0 && o->roi.y == 0 && o->roi.w == s->full.width && o->roi.h == s->full.height) {
+                /* Whole frame: hand the buffer over instead of copying it (the back end reuses or
+                 * reallocates whatever it gets back). */
+                sp_image tmp = *img;
+                *img = s->full;
+                s->full = tmp;
+            } else if ((rc = crop(&s->full, &o->roi, img, err))) {
+                s->failed = 1;
+                return rc;
+            }
+            *t_s = t;
         }
         s->delivered++;
         *index = idx;
-        *t_s = t;
         *got = 1;
         return SP_OK;
     }
 }
 
+int sp_source_next(sp_source *s, sp_image *img, int64_t *index, double *t_s, int *got, sp_error *err)
+{
+    return advance(s, 1, img, index, t_s, got, err);
+}
+
 int sp_source_skip(sp_source *s, int64_t *index, int *got, sp_error *err)
 {
-    *got = 0;
-    if (s->failed)
-        return sp_error_set(err, SP_ERR_INTERNAL, "%s: source read again after an error", s->path);
-    const sp_source_opts *o = &s->opts;
-    for (;;) {
-        if (o->count > 0 && s->delivered >= o->count)
-            return SP_OK;
-        int64_t idx = s->next_index;
-        int want = idx >= o->start && (idx - o->start) % o->step == 0;
-        int g = 0, rc;
-        if (s->video)
-            rc = sp_video_skip(s->video, &g, err);
-        else
-            rc = sp_stills_next(s->stills, 0, &s->full, &g, err);
-        if (rc) {
-            s->failed = 1;
-            return rc;
-        }
-        if (!g)
-            return SP_OK;
-        s->next_index++;
-        if (!want)
-            continue;
-        s->delivered++;
-        *index = idx;
-        *got = 1;
-        return SP_OK;
-    }
+    double t;
+    return advance(s, 0, NULL, index, &t, got, err);
 }
 
 int sp_source_seek(sp_source *s, int64_t pos, int *done, sp_error *err)
