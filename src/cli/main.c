@@ -350,7 +350,11 @@ int cmd_measure(int argc, char **argv)
         fprintf(stderr, "spume measure: %s\n", err.msg);
         return interrupted ? 130 : err.code == SP_ERR_INPUT ? 2 : 1;
     }
-    if (interrupted || !rep.complete) {
+    if (interrupted && rep.complete)
+        /* The stop came after the last frame was measured: the tables are whole, so the run counts
+         * as finished. */
+        fprintf(stderr, "spume measure: stop asked after the last frame was measured; the run is complete\n");
+    if (!rep.complete) {
         fprintf(stderr,
                 "spume measure: interrupted after %lld frames: tables in %s are valid and marked incomplete "
                 "in summary.json (the next frame would be %lld); to finish the run, repeat the command with "

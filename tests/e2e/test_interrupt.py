@@ -18,11 +18,19 @@ c = Checks()
 scene = os.path.join(work, "scene")
 spume(build, "synth", "plume", "--out", scene, "--frames", "300", "--no-png", "--quiet")
 meta = read_json(os.path.join(scene, "scene.json"))
-for sig, delay in ((signal.SIGINT, 1.0), (signal.SIGTERM, 6.0), (signal.SIGINT, 12.0)):
+# The first signal comes at once (before any frame, on most machines); the others a little after the
+# detection pass has opened its partial tables, so they land mid-run however fast the machine is.
+for sig, delay, after_tables in ((signal.SIGINT, 0.2, False), (signal.SIGTERM, 0.3, True),
+                                 (signal.SIGINT, 0.8, True)):
     out = os.path.join(work, f"out-{sig.name}-{delay}")
     p = subprocess.Popen([os.path.join(build, "spume"), "measure", os.path.join(scene, "video.mkv"), "--out", out,
                           "--scale", str(meta["mm_per_px"]), "--no-report", "--quiet"],
                          stderr=subprocess.PIPE, text=True)
+    t0 = time.monotonic()
+    while after_tables and p.poll() is None and time.monotonic() - t0 < 120:
+        if os.path.isdir(out) and any(f.endswith(".partial") for f in os.listdir(out)):
+            break
+        time.sleep(0.02)
     time.sleep(delay)
     p.send_signal(sig)
     try:
