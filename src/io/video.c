@@ -284,6 +284,15 @@ done:
     return n;
 }
 
+/* Timestamps on a frame grid are kept within ±GRID_MAX so that no sum or product below overflows,
+ * whatever a damaged index claims. */
+#define GRID_MAX (INT64_MAX / 4)
+
+static int grid_sane(int64_t t0, int64_t dur, int64_t n)
+{
+    return dur > 0 && n > 0 && t0 > -GRID_MAX && t0 < GRID_MAX && dur <= (GRID_MAX - (t0 > 0 ? t0 : 0)) / n;
+}
+
 /* The frame count of a stream whose codec codes every frame on its own and whose index lists frames
  * 0..n-1 at one constant step from the first (rawvideo in NUT): the index's entries, plus the packets
  * after the last entry, read from there to the end on the same grid. Reads only the tail of the file
@@ -305,6 +314,8 @@ static int64_t count_by_index(const char *path, int stream)
     if (!e0 || !e1 || e1->timestamp <= e0->timestamp)
         goto done;
     int64_t t0 = e0->timestamp, dur = e1->timestamp - e0->timestamp;
+    if (!grid_sane(t0, dur, ne))
+        goto done;
     for (int i = 2; i < ne; i++) {
         const AVIndexEntry *e = avformat_index_get_entry(st, i);
         if (!e || e->timestamp != t0 + (int64_t)i * dur)
@@ -332,8 +343,8 @@ static int64_t count_by_index(const char *path, int stream)
         av_packet_unref(pkt);
         if (!ours)
             continue;
-        if (pts == AV_NOPTS_VALUE || (pts - t0) % dur != 0 || (k >= 0 && pts != t0 + (k + 1) * dur) ||
-            (k < 0 && pts != last))
+        if (pts == AV_NOPTS_VALUE || pts < t0 || pts > GRID_MAX || (pts - t0) % dur != 0 ||
+            (k >= 0 && pts != t0 + (k + 1) * dur) || (k < 0 && pts != last))
             goto done; /* off the grid, a gap, or the seek landed elsewhere */
         k = (pts - t0) / dur;
     }
@@ -554,6 +565,8 @@ static int seek_usable(sp_video *v)
     if (!e0 || !e1 || e0->timestamp != v->first_ts || e1->timestamp <= e0->timestamp)
         return 0;
     int64_t dur = e1->timestamp - e0->timestamp;
+    if (!grid_sane(e0->timestamp, dur, n))
+        return 0;
     for (int i = 2; i < n; i++) {
         const AVIndexEntry *e = avformat_index_get_entry(st, i);
         if (!e || e->timestamp != e0->timestamp + (int64_t)i * dur)
@@ -570,7 +583,8 @@ int sp_video_seek(sp_video *v, int64_t k, int *done, sp_error *err)
 {
     (void)err;
     *done = 0;
-    if (v->pending || v->flushing || v->done || v->stashed || k <= v->decoded || !seek_usable(v))
+    if (v->pending || v->flushing || v->done || v->stashed || k <= v->decoded || !seek_usable(v) ||
+        !grid_sane(v->first_ts, v->seek_dur, k + 1))
         return SP_OK;
     int64_t target = v->first_ts + k * v->seek_dur;
     if (av_seek_frame(v->fmt, v->stream, target, AVSEEK_FLAG_BACKWARD) < 0) {
@@ -589,7 +603,7 @@ int sp_video_seek(sp_video *v, int64_t k, int *done, sp_error *err)
             continue;
         }
         int64_t pts = v->pkt->pts;
-        if (pts != AV_NOPTS_VALUE && pts < target && (target - pts) % v->seek_dur == 0) {
+        if (pts != AV_NOPTS_VALUE && pts > -GRID_MAX && pts < target && (target - pts) % v->seek_dur == 0) {
             av_packet_unref(v->pkt);
             continue; /* landed before the frame: on the grid, drop */
         }
