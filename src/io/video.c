@@ -293,6 +293,29 @@ static int grid_sane(int64_t t0, int64_t dur, int64_t n)
     return dur > 0 && n > 0 && t0 > -GRID_MAX && t0 < GRID_MAX && dur <= (GRID_MAX - (t0 > 0 ? t0 : 0)) / n;
 }
 
+/* Does the stream's index list frames 0..n-1 at one constant step from its first entry? On yes,
+ * *t0 is the first timestamp, *dur the step and *n the entries (at least 2). */
+static int index_grid(AVStream *st, int64_t *t0, int64_t *dur, int *n)
+{
+    int ne = avformat_index_get_entries_count(st);
+    if (ne < 2)
+        return 0;
+    const AVIndexEntry *e0 = avformat_index_get_entry(st, 0), *e1 = avformat_index_get_entry(st, 1);
+    if (!e0 || !e1 || e1->timestamp <= e0->timestamp ||
+        !grid_sane(e0->timestamp, e1->timestamp - e0->timestamp, ne))
+        return 0;
+    int64_t step = e1->timestamp - e0->timestamp;
+    for (int i = 2; i < ne; i++) {
+        const AVIndexEntry *e = avformat_index_get_entry(st, i);
+        if (!e || e->timestamp != e0->timestamp + (int64_t)i * step)
+            return 0;
+    }
+    *t0 = e0->timestamp;
+    *dur = step;
+    *n = ne;
+    return 1;
+}
+
 /* The frame count of a stream whose codec codes every frame on its own and whose index lists frames
  * 0..n-1 at one constant step from the first (rawvideo in NUT): the index's entries, plus the packets
  * after the last entry, read from there to the end on the same grid. Reads only the tail of the file
@@ -307,20 +330,11 @@ static int64_t count_by_index(const char *path, int stream)
         goto done;
     AVStream *st = fmt->streams[stream];
     const AVCodecDescriptor *desc = avcodec_descriptor_get(st->codecpar->codec_id);
-    int ne = avformat_index_get_entries_count(st);
-    if (!desc || !(desc->props & AV_CODEC_PROP_INTRA_ONLY) || ne < 2 || !(pkt = av_packet_alloc()))
+    int64_t t0, dur;
+    int ne;
+    if (!desc || !(desc->props & AV_CODEC_PROP_INTRA_ONLY) || !index_grid(st, &t0, &dur, &ne) ||
+        !(pkt = av_packet_alloc()))
         goto done;
-    const AVIndexEntry *e0 = avformat_index_get_entry(st, 0), *e1 = avformat_index_get_entry(st, 1);
-    if (!e0 || !e1 || e1->timestamp <= e0->timestamp)
-        goto done;
-    int64_t t0 = e0->timestamp, dur = e1->timestamp - e0->timestamp;
-    if (!grid_sane(t0, dur, ne))
-        goto done;
-    for (int i = 2; i < ne; i++) {
-        const AVIndexEntry *e = avformat_index_get_entry(st, i);
-        if (!e || e->timestamp != t0 + (int64_t)i * dur)
-            goto done;
-    }
     /* The first packet must be frame 0 of the grid. */
     int ret;
     while ((ret = av_read_frame(fmt, pkt)) >= 0 && pkt->stream_index != stream)
@@ -557,21 +571,11 @@ static int seek_usable(sp_video *v)
     if (v->seek_ok)
         return v->seek_ok > 0;
     v->seek_ok = -1;
-    AVStream *st = v->fmt->streams[v->stream];
-    int n = avformat_index_get_entries_count(st);
-    if (!v->skippable || n < 2 || v->first_ts == AV_NOPTS_VALUE)
+    int64_t t0, dur;
+    int n;
+    if (!v->skippable || v->first_ts == AV_NOPTS_VALUE ||
+        !index_grid(v->fmt->streams[v->stream], &t0, &dur, &n) || t0 != v->first_ts)
         return 0;
-    const AVIndexEntry *e0 = avformat_index_get_entry(st, 0), *e1 = avformat_index_get_entry(st, 1);
-    if (!e0 || !e1 || e0->timestamp != v->first_ts || e1->timestamp <= e0->timestamp)
-        return 0;
-    int64_t dur = e1->timestamp - e0->timestamp;
-    if (!grid_sane(e0->timestamp, dur, n))
-        return 0;
-    for (int i = 2; i < n; i++) {
-        const AVIndexEntry *e = avformat_index_get_entry(st, i);
-        if (!e || e->timestamp != e0->timestamp + (int64_t)i * dur)
-            return 0;
-    }
     if (!v->stash && !(v->stash = av_packet_alloc()))
         return 0;
     v->seek_dur = dur;
@@ -644,6 +648,21 @@ typedef struct keypkt {
     int64_t dts_order; /* position in the file's packet order */
 } keypkt;
 
+/* Room for element n in *p (capacity *cap elements of size sz), doubling from `first`; -1 when out of
+ * memory (the packet list is bounded by KEYS_MAX_PACKETS, so no size overflows). */
+static int grow_for(size_t n, void **p, size_t *cap, size_t sz, size_t first)
+{
+    if (n < *cap)
+        return 0;
+    size_t nc = *cap ? 2 * *cap : first;
+    void *q = realloc(*p, nc * sz);
+    if (!q)
+        return -1;
+    *p = q;
+    *cap = nc;
+    return 0;
+}
+
 static int cmp_i64v(const void *a, const void *b)
 {
     int64_t x = *(const int64_t *)a, y = *(const int64_t *)b;
@@ -701,23 +720,11 @@ int sp_video_sample_keys(const char *path, const int64_t *target, int ntarget, i
         av_packet_unref(pkt);
         if (t == AV_NOPTS_VALUE)
             goto unsupported;
-        if (npts == cap) {
-            size_t nc = cap ? 2 * cap : 4096;
-            int64_t *q = realloc(pts, nc * sizeof *q);
-            if (!q)
-                goto oom;
-            pts = q;
-            cap = nc;
-        }
+        if (grow_for(npts, (void **)&pts, &cap, sizeof *pts, 4096))
+            goto oom;
         if (key) {
-            if (nkeys == kcap) {
-                size_t nc = kcap ? 2 * kcap : 256;
-                keypkt *q = realloc(keys, nc * sizeof *q);
-                if (!q)
-                    goto oom;
-                keys = q;
-                kcap = nc;
-            }
+            if (grow_for(nkeys, (void **)&keys, &kcap, sizeof *keys, 256))
+                goto oom;
             keys[nkeys].index = t; /* ranked below */
             keys[nkeys].dts_order = (int64_t)npts;
             nkeys++;
