@@ -6,6 +6,7 @@ import os
 import subprocess
 import sys
 import tempfile
+import time
 
 
 def build_dir():
@@ -60,3 +61,17 @@ class Checks:
     def done(self):
         print(f"{self.passed} passed, {self.failed} failed")
         sys.exit(1 if self.failed else 0)
+
+
+def signal_when_measuring(p, out, delay, sig, timeout=120):
+    """Send sig to the measure process p `delay` seconds after its detection pass has opened its
+    partial tables in `out` (or gave up waiting after `timeout` s), so the signal lands mid-run however
+    fast the machine is; nothing is sent to a process that has already ended."""
+    t0 = time.monotonic()
+    while p.poll() is None and time.monotonic() - t0 < timeout:
+        if os.path.isdir(out) and any(f.endswith(".partial") for f in os.listdir(out)):
+            break
+        time.sleep(0.01)
+    time.sleep(delay)
+    if p.poll() is None:
+        p.send_signal(sig)

@@ -10,7 +10,7 @@ import signal
 import subprocess
 import time
 
-from common import Checks, build_dir, read_json, spume, tmpdir
+from common import Checks, build_dir, read_json, signal_when_measuring, spume, tmpdir
 
 build = build_dir()
 work = tmpdir("interrupt")
@@ -26,13 +26,11 @@ for sig, delay, after_tables in ((signal.SIGINT, 0.2, False), (signal.SIGTERM, 0
     p = subprocess.Popen([os.path.join(build, "spume"), "measure", os.path.join(scene, "video.mkv"), "--out", out,
                           "--scale", str(meta["mm_per_px"]), "--no-report", "--quiet"],
                          stderr=subprocess.PIPE, text=True)
-    t0 = time.monotonic()
-    while after_tables and p.poll() is None and time.monotonic() - t0 < 120:
-        if os.path.isdir(out) and any(f.endswith(".partial") for f in os.listdir(out)):
-            break
-        time.sleep(0.02)
-    time.sleep(delay)
-    p.send_signal(sig)
+    if after_tables:
+        signal_when_measuring(p, out, delay, sig)
+    else:
+        time.sleep(delay)
+        p.send_signal(sig)
     try:
         _, err = p.communicate(timeout=300)
     except subprocess.TimeoutExpired:

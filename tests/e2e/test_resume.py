@@ -7,16 +7,14 @@ differ, or the checkpoint, its spill or the tables were damaged.
 The signal is real: the test waits until detection is under way (the temporary bubbles table appears,
 which happens after the background pass and, on resume, after the replay), then sends it; with one
 worker thread the run has several seconds of frames left, so the signal lands mid-run."""
-import glob
 import hashlib
 import json
 import os
 import shutil
 import signal
 import subprocess
-import time
 
-from common import Checks, build_dir, read_json, spume, tmpdir
+from common import Checks, build_dir, read_json, signal_when_measuring, spume, tmpdir
 
 build = build_dir()
 exe = os.path.join(build, "spume")
@@ -50,14 +48,7 @@ def interrupted_run(args, out, sig, tag):
     """Start measure, wait until detection runs, send sig; True when it stopped with status 130."""
     p = subprocess.Popen([exe, "measure", *args, "--out", out, "--no-report", "--quiet", "--threads", "1"],
                          stderr=subprocess.PIPE, text=True)
-    t0 = time.time()
-    while p.poll() is None and not glob.glob(os.path.join(out, ".bubbles.csv.*.partial")):
-        if time.time() - t0 > 120:
-            break
-        time.sleep(0.01)
-    time.sleep(0.4)
-    if p.poll() is None:
-        p.send_signal(sig)
+    signal_when_measuring(p, out, 0.4, sig)
     try:
         _, err = p.communicate(timeout=300)
     except subprocess.TimeoutExpired:
@@ -164,14 +155,7 @@ if interrupted_run(argsB, outB, signal.SIGINT, "B first"):
     n1 = read_json(os.path.join(outB, "summary.json"))["next_frame"]
     p = subprocess.Popen([exe, "measure", *argsB, "--out", outB, "--resume", "--no-report", "--quiet",
                           "--threads", "1"], stderr=subprocess.PIPE, text=True)
-    t0 = time.time()
-    while p.poll() is None and not glob.glob(os.path.join(outB, ".bubbles.csv.*.partial")):
-        if time.time() - t0 > 120:
-            break
-        time.sleep(0.01)
-    time.sleep(0.4)
-    if p.poll() is None:
-        p.send_signal(signal.SIGTERM)
+    signal_when_measuring(p, outB, 0.4, signal.SIGTERM)
     _, err = p.communicate(timeout=300)
     c.check(p.returncode == 130, f"B: resumed run interrupted again, exit 130 ({p.returncode}) {err.strip()}")
     if p.returncode == 130:
