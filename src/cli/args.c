@@ -74,3 +74,14 @@ void end_progress(progress_state *ps)
     if (ps->show && ps->last > 0)
         fprintf(stderr, "\r%-70s\r", "");
 }
+
+int args_positional(const char *cmd, const char *a, const char **positional)
+{
+    if (a[0] == '-' && a[1])
+        return usage_error(cmd, "unknown option '%s'", a);
+    if (positional && !*positional) {
+        *positional = a;
+        return 0;
+    }
+    return usage_error(cmd, "unexpected argument '%s'", a);
+}

@@ -119,12 +119,10 @@ int cmd_calibrate(int argc, char **argv)
                 point_opt = 1;
         } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
             quiet = 1;
-        } else if (a[0] == '-' && a[1]) {
-            return usage_error(cmd, "unknown option '%s'", a);
-        } else if (!image) {
-            image = a;
         } else {
-            return usage_error(cmd, "unexpected argument '%s'", a);
+            int r = args_positional(cmd, a, &image);
+            if (r)
+                return r;
         }
     }
     if (!image)
@@ -165,8 +163,8 @@ int cmd_calibrate(int argc, char **argv)
                 "spume calibrate: %.7g ± %.2g mm/px (%.3g%%), rotation %.3f ± %.3f deg, %d of %d %s dots, "
                 "residuals rms %.3f px max %.3f px, %d radial term%s, scale varies %.2g%% over the "
                 "corners -> %s\n",
-                r.mm_per_px, r.mm_per_px_uncertainty, 100 * rel, rot, r.rotation_uncertainty_deg,
-                r.dots_used, r.dots_found, r.polarity == SP_DOTS_LIGHT ? "light" : "dark", r.rms_px, r.max_px,
+                r.mm_per_px, r.mm_per_px_uncertainty, 100 * rel, rot, r.rotation_uncertainty_deg, r.dots_used,
+                r.dots_found, r.polarity == SP_DOTS_LIGHT ? "light" : "dark", r.rms_px, r.max_px,
                 r.radial.terms, r.radial.terms == 1 ? "" : "s", 100 * r.scale_variation, out);
     }
     return 0;

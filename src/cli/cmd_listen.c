@@ -203,12 +203,10 @@ int cmd_listen(int argc, char **argv)
             s.write_rejected = 1;
         } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
             quiet = 1;
-        } else if (a[0] == '-' && a[1]) {
-            return usage_error(cmd, "unknown option '%s'", a);
-        } else if (!audio) {
-            audio = a;
         } else {
-            return usage_error(cmd, "unexpected argument '%s'", a);
+            int r = args_positional(cmd, a, &audio);
+            if (r)
+                return r;
         }
     }
     if (!audio)

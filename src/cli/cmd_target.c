@@ -133,10 +133,8 @@ int cmd_synth_target(int argc, char **argv)
             o.light_dots = 1;
         } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
             quiet = 1;
-        } else if (a[0] == '-' && a[1]) {
-            return usage_error(cmd, "unknown option '%s'", a);
         } else {
-            return usage_error(cmd, "unexpected argument '%s'", a);
+            return args_positional(cmd, a, NULL);
         }
     }
     if (!out)

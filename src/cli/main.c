@@ -315,12 +315,10 @@ int cmd_measure(int argc, char **argv)
             quiet = 1;
         } else if (!strcmp(a, "--resume")) {
             s.resume = 1;
-        } else if (a[0] == '-' && a[1]) {
-            return usage_error(cmd, "unknown option '%s'", a);
-        } else if (!input) {
-            input = a;
         } else {
-            return usage_error(cmd, "unexpected argument '%s'", a);
+            int r = args_positional(cmd, a, &input);
+            if (r)
+                return r;
         }
 #undef NEED_VALUE
     }
@@ -453,12 +451,10 @@ int cmd_synth(int argc, char **argv)
             o.video = 0;
         } else if (!strcmp(a, "--quiet") || !strcmp(a, "-q")) {
             quiet = 1;
-        } else if (a[0] == '-' && a[1]) {
-            return usage_error(cmd, "unknown option '%s'", a);
-        } else if (!scenario) {
-            scenario = a;
         } else {
-            return usage_error(cmd, "unexpected argument '%s'", a);
+            int r = args_positional(cmd, a, &scenario);
+            if (r)
+                return r;
         }
     }
     if (!scenario)

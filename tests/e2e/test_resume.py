@@ -8,7 +8,6 @@ The signal is real: the test waits until detection is under way (the temporary b
 which happens after the background pass and, on resume, after the replay), then sends it; with one
 worker thread the run has several seconds of frames left, so the signal lands mid-run."""
 import hashlib
-import json
 import os
 import shutil
 import signal
