@@ -1,5 +1,5 @@
 /* The measure job: stream frames, estimate the background, detect bubbles frame by frame in
- * parallel, and write the tables in frame order. Memory is bounded by the batch of frames in
+ * parallel, and write the tables in frame order. Memory is bounded by the ring of frames in
  * flight and the background samples, never by the length of the recording. */
 #include "spume.h"
 
@@ -653,60 +653,144 @@ static int slot_store(slot *sl, const sp_detect_result *r)
     return 0;
 }
 
-/* Decoding runs one batch ahead of the analysis, on a thread of its own: while the workers measure
- * batch k, the decoder fills batch k + 1 (the decoder's own frame or slice threads come on top). */
-typedef struct fbatch {
+/* Frames stream through a ring of slots: a decoder thread fills them in order, worker threads measure
+ * any filled one, and the caller consumes them strictly in frame order (tables, tracks) and hands
+ * each slot back to the decoder. Every wait blocks on a condition variable, so an idle worker leaves
+ * its core to the decoder (and to the decoder's own frame or slice threads) instead of spinning. */
+typedef struct flow {
+    pthread_mutex_t mu;
+    pthread_cond_t filled;   /* a slot was decoded, or decoding ended: workers wait on it */
+    pthread_cond_t measured; /* a slot was measured: the consumer waits on it */
+    pthread_cond_t freed;    /* a slot was consumed: the decoder waits on it */
     slot *slots;
-    int n;   /* frames read */
-    int end; /* the source is exhausted */
-    int rc;
+    int nslots;
+    int8_t *done;     /* per slot: measured */
+    int64_t decoded;  /* frames decoded so far (slot = sequence % nslots) */
+    int64_t taken;    /* frames handed to workers */
+    int64_t consumed; /* frames consumed in order */
+    int end;          /* the decoder has delivered its last frame */
+    int quit;         /* the consumer stopped: every thread leaves */
+    int rc;           /* the decoder's error, after its last good frame */
     sp_error err;
-} fbatch;
-
-typedef struct producer {
     sp_source *src;
-    fbatch *b;
-    int cap;
-    pthread_t th;
-    int running;
-} producer;
+    /* measuring */
+    sp_detector **det;
+    float **bgbuf;
+    const bgset *bg;
+    const sp_detect_opts *dopt;
+    int64_t pos0; /* selection position of sequence 0 */
+    size_t npx;
+} flow;
 
-static void *fill_batch(void *arg)
+typedef struct worker {
+    flow *f;
+    int id;
+} worker;
+
+static void *decode_loop(void *arg)
 {
-    producer *p = arg;
-    fbatch *b = p->b;
-    b->n = 0;
-    b->end = 0;
-    b->rc = SP_OK;
-    sp_error_clear(&b->err);
-    while (b->n < p->cap) {
-        int got = 0;
-        slot *sl = &b->slots[b->n];
-        if ((b->rc = sp_source_next(p->src, &sl->img, &sl->index, &sl->t, &got, &b->err)))
+    flow *f = arg;
+    pthread_mutex_lock(&f->mu);
+    for (;;) {
+        while (!f->quit && f->decoded - f->consumed >= f->nslots)
+            pthread_cond_wait(&f->freed, &f->mu);
+        if (f->quit)
             break;
-        if (!got) {
-            b->end = 1;
+        slot *sl = &f->slots[f->decoded % f->nslots];
+        pthread_mutex_unlock(&f->mu);
+        int got = 0;
+        sp_error e;
+        sp_error_clear(&e);
+        int rc = sp_source_next(f->src, &sl->img, &sl->index, &sl->t, &got, &e);
+        pthread_mutex_lock(&f->mu);
+        if (rc || !got) {
+            f->rc = rc;
+            f->err = e;
+            f->end = 1;
+            pthread_cond_broadcast(&f->filled);
+            pthread_cond_broadcast(&f->measured);
             break;
         }
-        b->n++;
+        f->done[f->decoded % f->nslots] = 0;
+        f->decoded++;
+        pthread_cond_signal(&f->filled);
     }
+    pthread_mutex_unlock(&f->mu);
     return NULL;
 }
 
-/* Start filling b; without a thread, fill it here. */
-static void producer_start(producer *p, fbatch *b)
+static void measure_slot(flow *f, int id, int64_t seq)
 {
-    p->b = b;
-    p->running = pthread_create(&p->th, NULL, fill_batch, p) == 0;
-    if (!p->running)
-        fill_batch(p);
+    slot *sl = &f->slots[seq % f->nslots];
+    const float *b = bg_for(f->bg, f->pos0 + seq, f->bgbuf[id], f->npx);
+    sp_detect_result r;
+    sp_error_clear(&sl->err);
+    sl->rc = sp_detect_run(f->det[id], &sl->img, b, f->dopt, 1, &r, &sl->err);
+    if (!sl->rc && slot_store(sl, &r))
+        sl->rc = sp_error_set(&sl->err, SP_ERR_INTERNAL, "measure: out of memory");
 }
 
-static void producer_wait(producer *p)
+static void *work_loop(void *arg)
 {
-    if (p->running)
-        pthread_join(p->th, NULL);
-    p->running = 0;
+    worker *wk = arg;
+    flow *f = wk->f;
+    pthread_mutex_lock(&f->mu);
+    for (;;) {
+        while (!f->quit && f->taken == f->decoded && !f->end)
+            pthread_cond_wait(&f->filled, &f->mu);
+        if (f->quit || f->taken == f->decoded)
+            break;
+        int64_t seq = f->taken++;
+        pthread_mutex_unlock(&f->mu);
+        measure_slot(f, wk->id, seq);
+        pthread_mutex_lock(&f->mu);
+        f->done[seq % f->nslots] = 1;
+        if (seq == f->consumed)
+            pthread_cond_signal(&f->measured);
+    }
+    pthread_mutex_unlock(&f->mu);
+    return NULL;
+}
+
+/* The next frame in order, measured; NULL at the end of the source or on its error (f->rc). */
+static slot *flow_next(flow *f)
+{
+    pthread_mutex_lock(&f->mu);
+    while (!(f->consumed < f->decoded && f->done[f->consumed % f->nslots]) &&
+           !(f->end && f->consumed == f->decoded))
+        pthread_cond_wait(&f->measured, &f->mu);
+    slot *sl = f->consumed < f->decoded ? &f->slots[f->consumed % f->nslots] : NULL;
+    pthread_mutex_unlock(&f->mu);
+    return sl;
+}
+
+/* The consumed slot goes back to the decoder. */
+static void flow_release(flow *f)
+{
+    pthread_mutex_lock(&f->mu);
+    f->consumed++;
+    pthread_cond_signal(&f->freed);
+    pthread_mutex_unlock(&f->mu);
+}
+
+static void flow_quit(flow *f)
+{
+    pthread_mutex_lock(&f->mu);
+    f->quit = 1;
+    pthread_cond_broadcast(&f->filled);
+    pthread_cond_broadcast(&f->freed);
+    pthread_cond_broadcast(&f->measured);
+    pthread_mutex_unlock(&f->mu);
+}
+
+/* Stop the threads and wait for them (the decoder finishes the frame in hand). */
+static void flow_stop(flow *f, pthread_t *dec, pthread_t *work, int nwork)
+{
+    flow_quit(f);
+    if (dec)
+        pthread_join(*dec, NULL);
+    for (int i = 0; i < nwork; i++)
+        pthread_join(work[i], NULL);
 }
 
 int sp_measure(const char *input, const char *outdir, const sp_measure_settings *settings,
@@ -734,12 +818,19 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     sp_detector **det = NULL;
     float **bgbuf = NULL;
     totals tot = {0};
-    producer prod = {0};
+    flow fl;
+    memset(&fl, 0, sizeof fl);
+    int flow_ready = 0, nstarted = 0, decoding = 0;
+    pthread_t dec_th, *work_th = NULL;
+    worker *wk = NULL;
+    int8_t *sdone = NULL;
     sp_image keep_img[KEEP_MAX] = {{0}};
     int64_t keep_pos[KEEP_MAX], keep_idx[KEEP_MAX];
     int nkeep = 0;
     const int nthreads = s->threads > 0 ? s->threads : omp_get_max_threads();
+    /* Progress (and a stop) every `batch` frames; twice that many slots in the ring. */
     int batch = nthreads * 4 > MAX_BATCH ? MAX_BATCH : nthreads * 4;
+    const int nslots = 2 * batch;
 
     sp_liquid liq;
     if ((rc = load_liquid(s, &liq, err)))
@@ -806,10 +897,13 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     dopt.measure.min_sharpness = s->min_sharpness;
     dopt.measure.split = s->split;
 
-    slots = calloc(2 * (size_t)batch, sizeof *slots);
+    slots = calloc((size_t)nslots, sizeof *slots);
+    sdone = calloc((size_t)nslots, 1);
     det = calloc((size_t)nthreads, sizeof *det);
     bgbuf = calloc((size_t)nthreads, sizeof *bgbuf);
-    if (!slots || !det || !bgbuf) {
+    work_th = calloc((size_t)nthreads, sizeof *work_th);
+    wk = calloc((size_t)nthreads, sizeof *wk);
+    if (!slots || !sdone || !det || !bgbuf || !work_th || !wk) {
         rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: out of memory");
         goto done;
     }
@@ -867,98 +961,114 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
 
     double t0 = now_s();
     int64_t pos = sp_resume_pos(rs);
-    fbatch bt[2] = {{slots, 0, 0, 0, {0}}, {slots + batch, 0, 0, 0, {0}}};
-    int cur = 0;
-    prod.src = src;
-    prod.cap = batch;
-    producer_start(&prod, &bt[0]);
-    for (;;) {
-        producer_wait(&prod);
-        if (bt[cur].rc) {
-            rc = bt[cur].rc;
-            *err = bt[cur].err;
+    fl.slots = slots;
+    fl.nslots = nslots;
+    fl.done = sdone;
+    fl.src = src;
+    fl.det = det;
+    fl.bgbuf = bgbuf;
+    fl.bg = &bg;
+    fl.dopt = &dopt;
+    fl.pos0 = pos;
+    fl.npx = npx;
+    if (pthread_mutex_init(&fl.mu, NULL) || pthread_cond_init(&fl.filled, NULL) ||
+        pthread_cond_init(&fl.measured, NULL) || pthread_cond_init(&fl.freed, NULL)) {
+        rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: cannot set up the frame queue");
+        goto done;
+    }
+    flow_ready = 1;
+    if (sp_resume_exhausted(rs)) {
+        fl.end = 1; /* every frame of the selection was measured before the stop */
+    } else {
+        if (pthread_create(&dec_th, NULL, decode_loop, &fl)) {
+            rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: cannot start the decoding thread");
             goto done;
         }
+        decoding = 1;
+        for (int i = 0; i < nthreads; i++) {
+            wk[i].f = &fl;
+            wk[i].id = i;
+            if (pthread_create(&work_th[nstarted], NULL, work_loop, &wk[i]))
+                break;
+            nstarted++;
+        }
+        if (nstarted == 0) {
+            rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: cannot start a worker thread");
+            goto done;
+        }
+    }
+    for (;;) {
+        /* A stop lands between frames: everything consumed so far is written, nothing after it. */
         if (s->stop && *s->stop) {
             tot.stopped = 1;
             break;
         }
-        if (sp_resume_exhausted(rs))
+        slot *sl = flow_next(&fl);
+        if (!sl) {
+            if (fl.rc) {
+                rc = fl.rc;
+                *err = fl.err;
+                goto done;
+            }
+            if (s->progress && (pos - sp_resume_pos(rs)) % batch != 0) {
+                int64_t total = info->frames_selected > 0 ? info->frames_selected + sp_resume_pos(rs) : -1;
+                sp_progress p = {"detect", pos, total, now_s() - t0};
+                s->progress(s->progress_ud, &p);
+            }
             break;
-        slot *slots = bt[cur].slots;
-        int nb = bt[cur].n;
-        if (nb == 0)
-            break;
+        }
         if (pos == 0)
-            sp_resume_first_frame(rs, &slots[0].img);
-        if (!bt[cur].end)
-            producer_start(&prod, &bt[1 - cur]);
-#pragma omp parallel for num_threads(nthreads) schedule(dynamic, 1)
-        for (int k = 0; k < nb; k++) {
-            int tid = omp_get_thread_num();
-            slot *sl = &slots[k];
-            const float *b = bg_for(&bg, pos + k, bgbuf[tid], npx);
-            sp_detect_result r;
-            sp_error_clear(&sl->err);
-            sl->rc = sp_detect_run(det[tid], &sl->img, b, &dopt, 1, &r, &sl->err);
-            if (!sl->rc && slot_store(sl, &r))
-                sl->rc = sp_error_set(&sl->err, SP_ERR_INTERNAL, "measure: out of memory");
+            sp_resume_first_frame(rs, &sl->img);
+        if (sl->rc) {
+            rc = sp_error_set(err, sl->rc, "%s: frame %lld: %s", input, (long long)sl->index, sl->err.msg);
+            goto done;
         }
-        for (int k = 0; k < nb; k++) {
-            slot *sl = &slots[k];
-            if (sl->rc) {
-                rc =
-                    sp_error_set(err, sl->rc, "%s: frame %lld: %s", input, (long long)sl->index, sl->err.msg);
+        if (have_cal && cal.radial.terms > 0)
+            undistort_bubbles(sl, &cal, s->source.roi.w > 0 ? s->source.roi.x : 0,
+                              s->source.roi.h > 0 ? s->source.roi.y : 0);
+        if (tr) {
+            if ((rc = sp_resume_spill(rs, sl->index, sl->t, sl->bub, sl->n, err)) ||
+                (rc = sp_trackrun_frame(tr, sl->index, sl->t, sl->bub, sl->n, sl->ids, err)))
                 goto done;
-            }
-            if (have_cal && cal.radial.terms > 0)
-                undistort_bubbles(sl, &cal, s->source.roi.w > 0 ? s->source.roi.x : 0,
-                                  s->source.roi.h > 0 ? s->source.roi.y : 0);
-            if (tr) {
-                if ((rc = sp_resume_spill(rs, sl->index, sl->t, sl->bub, sl->n, err)) ||
-                    (rc = sp_trackrun_frame(tr, sl->index, sl->t, sl->bub, sl->n, sl->ids, err)))
-                    goto done;
-            } else {
-                for (int i = 0; i < sl->n; i++)
-                    sl->ids[i] = 0;
-            }
-            double vol = 0; /* oblate spheroids, mm³ (px³ uncalibrated) */
-            for (int i = 0; i < sl->n; i++) {
-                double dv = sl->bub[i].d_vol_px * sc;
-                vol += M_PI / 6.0 * dv * dv * dv;
-            }
-            for (int q = 0; q < nkeep; q++)
-                if (keep_pos[q] == pos + k && (rc = keep_copy(&keep_img[q], &sl->img, err)) == SP_OK)
-                    keep_idx[q] = sl->index;
-            if (rc)
-                goto done;
-            tot.volume_sum += vol / region_mm3;
-            tot.last_index = sl->index;
-            if (tot.frames == 0)
-                tot.t_first = sl->t;
-            tot.t_last = sl->t;
-            tot.frames++;
-            tot.detections += sl->n;
-            double frac = sl->gas_px / (double)npx;
-            tot.holdup_sum += frac;
-            write_bubble_rows(ob.f, sl, s, info,
-                              have_cal && cal.mm_per_px > 0 ? cal.mm_per_px_uncertainty / cal.mm_per_px : 0,
-                              &tot);
-            fprintf(of.f, "%lld,%.6f,%d,%.5f,%.4f,%.6f,%.6g\n", (long long)sl->index, sl->t, sl->n, sl->gain,
-                    sl->level, frac, vol);
+        } else {
+            for (int i = 0; i < sl->n; i++)
+                sl->ids[i] = 0;
         }
-        pos += nb;
-        if (s->progress) {
+        double vol = 0; /* oblate spheroids, mm³ (px³ uncalibrated) */
+        for (int i = 0; i < sl->n; i++) {
+            double dv = sl->bub[i].d_vol_px * sc;
+            vol += M_PI / 6.0 * dv * dv * dv;
+        }
+        for (int q = 0; q < nkeep; q++)
+            if (keep_pos[q] == pos && (rc = keep_copy(&keep_img[q], &sl->img, err)) == SP_OK)
+                keep_idx[q] = sl->index;
+        if (rc)
+            goto done;
+        tot.volume_sum += vol / region_mm3;
+        tot.last_index = sl->index;
+        if (tot.frames == 0)
+            tot.t_first = sl->t;
+        tot.t_last = sl->t;
+        tot.frames++;
+        tot.detections += sl->n;
+        double frac = sl->gas_px / (double)npx;
+        tot.holdup_sum += frac;
+        write_bubble_rows(ob.f, sl, s, info,
+                          have_cal && cal.mm_per_px > 0 ? cal.mm_per_px_uncertainty / cal.mm_per_px : 0,
+                          &tot);
+        fprintf(of.f, "%lld,%.6f,%d,%.5f,%.4f,%.6f,%.6g\n", (long long)sl->index, sl->t, sl->n, sl->gain,
+                sl->level, frac, vol);
+        pos++;
+        flow_release(&fl);
+        if (s->progress && (pos - sp_resume_pos(rs)) % batch == 0) {
             /* A resumed run's source holds only the frames left: count those done before too. */
             int64_t total = info->frames_selected > 0 ? info->frames_selected + sp_resume_pos(rs) : -1;
             sp_progress p = {"detect", pos, total, now_s() - t0};
             s->progress(s->progress_ud, &p);
         }
-        if (bt[cur].end)
-            break;
-        cur = 1 - cur;
     }
-    producer_wait(&prod);
+    flow_stop(&fl, decoding ? &dec_th : NULL, work_th, nstarted);
+    decoding = nstarted = 0;
     if (tot.frames == 0) {
         rc = tot.stopped
                  ? sp_error_set(err, SP_ERR_INPUT,
@@ -1038,10 +1148,19 @@ done:
     sp_outfile_abort(&ot);
     sp_outfile_abort(&oz);
     sp_trackrun_free(tr);
-    producer_wait(&prod); /* an error path may leave the decoder filling the other batch */
+    if (flow_ready) {
+        flow_stop(&fl, decoding ? &dec_th : NULL, work_th, nstarted); /* an error path leaves them running */
+        pthread_mutex_destroy(&fl.mu);
+        pthread_cond_destroy(&fl.filled);
+        pthread_cond_destroy(&fl.measured);
+        pthread_cond_destroy(&fl.freed);
+    }
+    free(work_th);
+    free(wk);
+    free(sdone);
     sp_resume_free(rs);
     if (slots)
-        for (int k = 0; k < 2 * batch; k++) {
+        for (int k = 0; k < nslots; k++) {
             sp_image_free(&slots[k].img);
             free(slots[k].bub);
             free(slots[k].ids);

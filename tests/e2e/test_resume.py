@@ -43,11 +43,12 @@ def snapshot(d):
     return out
 
 
-def interrupted_run(args, out, sig, tag):
-    """Start measure, wait until detection runs, send sig; True when it stopped with status 130."""
+def interrupted_run(args, out, sig, tag, delay=0.4):
+    """Start measure, wait until detection runs, send sig `delay` s later; True when it stopped with
+    status 130."""
     p = subprocess.Popen([exe, "measure", *args, "--out", out, "--no-report", "--quiet", "--threads", "1"],
                          stderr=subprocess.PIPE, text=True)
-    signal_when_measuring(p, out, 0.4, sig)
+    signal_when_measuring(p, out, delay, sig)
     try:
         _, err = p.communicate(timeout=300)
     except subprocess.TimeoutExpired:
@@ -170,7 +171,8 @@ argsC = [frames, *scale, "--fps", str(meta.get("fps", 500)), "--start", "10", "-
 cleanC = os.path.join(work, "cleanC")
 clean_run(argsC, cleanC)
 outC = os.path.join(work, "outC")
-if interrupted_run(argsC, outC, signal.SIGINT, "C"):
+# Its detection pass lasts about half a second here (70 PNG frames, one worker): signal early.
+if interrupted_run(argsC, outC, signal.SIGINT, "C", delay=0.1):
     p = resume(argsC, outC)
     c.check(p.returncode == 0, f"C: resume exit 0 ({p.returncode}) {p.stderr.strip()}")
     same_as_clean(outC, cleanC, "C")
