@@ -19,6 +19,8 @@ struct sp_detector {
     sp_measurer *ms;
     sp_bubble *bubbles;
     int cap;
+    sp_norm_plan plan;    /* for frames measured against plan_bg */
+    const float *plan_bg; /* NULL: no plan */
 };
 
 void sp_detect_opts_default(sp_detect_opts *o)
@@ -54,6 +56,7 @@ void sp_detector_free(sp_detector *d)
     free(d->mask);
     free(d->labels);
     free(d->bubbles);
+    sp_norm_plan_free(&d->plan);
     sp_labeler_free(d->lb);
     sp_filler_free(d->fl);
     sp_measurer_free(d->ms);
@@ -78,6 +81,15 @@ static int ensure_size(sp_detector *d, int w, int h, sp_error *err)
     return SP_OK;
 }
 
+int sp_detector_set_background(sp_detector *d, const float *bg, int w, int h, sp_error *err)
+{
+    d->plan_bg = NULL;
+    int rc = sp_norm_plan_build(&d->plan, bg, w, h, err);
+    if (!rc)
+        d->plan_bg = bg;
+    return rc;
+}
+
 int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const sp_detect_opts *o,
                   int nthreads, sp_detect_result *res, sp_error *err)
 {
@@ -86,7 +98,10 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
     if (rc)
         return rc;
     sp_frame_view v = {frame, bg, 1.f};
-    if (o->flicker)
+    const int planned = bg == d->plan_bg && d->plan.w == w && d->plan.h == h;
+    if (planned)
+        sp_norm_plan_scan(&d->plan, frame, o->flicker ? &v.gain : NULL);
+    else if (o->flicker)
         v.gain = sp_norm_gain(frame, bg);
 
     float level = (float)o->threshold;
@@ -97,7 +112,10 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
         /* Class 0 holds bins 0..t: the level is the upper edge of bin t. */
         level = t < 0 ? (float)o->threshold : (float)(t + 1) * SP_OTSU_RANGE / SP_OTSU_BINS;
     }
-    sp_norm_mask(&v, level, d->mask);
+    if (planned)
+        sp_norm_mask_planned(&d->plan, &v, level, d->mask);
+    else
+        sp_norm_mask(&v, level, d->mask);
     if (o->fill && (rc = sp_fill_holes(d->fl, d->mask, w, h, err)))
         return rc;
 

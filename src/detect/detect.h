@@ -30,6 +30,10 @@ typedef struct sp_detector sp_detector; /* per-thread workspace */
 sp_detector *sp_detector_new(void);
 void sp_detector_free(sp_detector *d);
 
+/* Precompute what the per-frame passes need from bg (w×h floats; see sp_norm_plan): later runs
+ * given the same bg pointer use it. Call again after changing bg's content in place. */
+int sp_detector_set_background(sp_detector *d, const float *bg, int w, int h, sp_error *err);
+
 /* Detect the bubbles of one frame against bg (frame-sized floats). nthreads is passed to the
  * labeller (1 when frames are already processed in parallel). */
 int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const sp_detect_opts *o,

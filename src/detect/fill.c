@@ -10,6 +10,8 @@
  */
 #include "detect/fill.h"
 
+#include "detect/bytescan.h"
+
 #include <stdlib.h>
 #include <string.h>
 
@@ -71,28 +73,6 @@ static int32_t find(int32_t *parent, int32_t a)
     return a;
 }
 
-/* First index >= x in p[0..n) whose byte is non-zero (want_zero = 0) or zero (want_zero = 1). */
-static int scan_to(const uint8_t *p, int x, int n, int want_zero)
-{
-    const uint64_t ones = 0x0101010101010101ull, highs = 0x8080808080808080ull;
-    while (x + 8 <= n) {
-        uint64_t v;
-        memcpy(&v, p + x, 8);
-        uint64_t hit = want_zero ? ((v - ones) & ~v & highs) : v;
-        if (hit) {
-#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
-            return x + (__builtin_ctzll(hit) >> 3);
-#else
-            break;
-#endif
-        }
-        x += 8;
-    }
-    while (x < n && ((p[x] == 0) != want_zero))
-        x++;
-    return x;
-}
-
 int sp_fill_holes(sp_filler *f, uint8_t *mask, int w, int h, sp_error *err)
 {
     int rc;
@@ -117,10 +97,10 @@ int sp_fill_holes(sp_filler *f, uint8_t *mask, int w, int h, sp_error *err)
         brun *rs = f->runs;
         int x = 0;
         while (x < w) {
-            int a0 = scan_to(row, x, w, 1); /* next background pixel */
+            int a0 = sp_scan_to(row, x, w, 1); /* next background pixel */
             if (a0 >= w)
                 break;
-            int e = scan_to(row, a0, w, 0);
+            int e = sp_scan_to(row, a0, w, 0);
             int a1 = e - 1;
             /* 4-connected: a run above must share a column. */
             while (p < pend && rs[p].x1 < a0)

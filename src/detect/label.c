@@ -15,6 +15,8 @@
 #include "detect/label.h"
 
 #include <limits.h>
+#include "detect/bytescan.h"
+
 #include <stdlib.h>
 #include <string.h>
 
@@ -121,30 +123,6 @@ static void unite(int32_t *parent, int32_t a, int32_t b)
         parent[a] = b;
 }
 
-/* Index of the first byte of p[0..n) that is non-zero (want_zero = 0) or zero (want_zero = 1),
- * or n. Eight bytes at a time: bubble masks are mostly background and runs are long. */
-static int scan_to(const uint8_t *p, int x, int n, int want_zero)
-{
-    const uint64_t ones = 0x0101010101010101ull, highs = 0x8080808080808080ull;
-    while (x + 8 <= n) {
-        uint64_t v;
-        memcpy(&v, p + x, 8);
-        /* zero-byte detector: flags exactly the zero bytes up to the first one (Mycroft's trick) */
-        uint64_t hit = want_zero ? ((v - ones) & ~v & highs) : v;
-        if (hit) {
-#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
-            return x + (__builtin_ctzll(hit) >> 3);
-#else
-            break;
-#endif
-        }
-        x += 8;
-    }
-    while (x < n && ((p[x] == 0) != want_zero))
-        x++;
-    return x;
-}
-
 /* First scan of one strip: runs, provisional labels, local equivalences. */
 static int scan_strip(strip *s, const uint8_t *mask, ptrdiff_t mstride, int w)
 {
@@ -164,10 +142,10 @@ static int scan_strip(strip *s, const uint8_t *mask, ptrdiff_t mstride, int w)
         run *rs = s->runs;
         int x = 0;
         for (;;) {
-            x = scan_to(row, x, w, 0);
+            x = sp_scan_to(row, x, w, 0);
             if (x >= w)
                 break;
-            int e = scan_to(row, x, w, 1); /* one past the run */
+            int e = sp_scan_to(row, x, w, 1); /* one past the run */
             int a0 = x, a1 = e - 1;
             /* Runs above that end left of a0-1 cannot touch this run or any later one. */
             while (p < pend && rs[p].x1 + 1 < a0)

@@ -18,4 +18,35 @@ void sp_norm_mask(const sp_frame_view *v, float level, uint8_t *mask);
  * bin), on every pixel; for an automatic threshold. */
 void sp_norm_hist(const sp_frame_view *v, float range, uint64_t *hist, int nbins);
 
+/* What the two per-frame passes above need from one background, computed once: the gain's sampling
+ * grid as a compact array, and the largest background value of each tile of the frame. With it,
+ * sp_norm_gain_planned and sp_norm_mask_planned give bit-identical results to the plain functions
+ * while reading the float background only where a tile may hold mask pixels: a tile whose darkest
+ * frame sample is at least level·gain times its brightest background value has none. Rebuild it
+ * whenever the background's content changes. */
+typedef struct sp_norm_plan {
+    int w, h;
+    int grid, gx0, gnx, gny; /* gain grid: columns gx0 + i·grid, rows gx0 + j·grid */
+    float *gbg;              /* background at the grid points, gny rows of gnx */
+    int ntx, nty;            /* tiles of SP_NORM_TILE × SP_NORM_TILE pixels */
+    float *tmax;             /* per tile: largest background value (+inf if any is not a number) */
+    uint16_t *tmin;          /* per tile: darkest sample of the scanned frame */
+    const sp_image *scanned; /* the frame tmin belongs to */
+    uint8_t *need;           /* per tile column: work space of the mask pass */
+    uint8_t *colmin8;        /* per column: work space */
+    uint16_t *colmin16;
+    float *work; /* per grid column: work space of the gain pass */
+    int *bins;
+} sp_norm_plan;
+
+#define SP_NORM_TILE 16
+
+int sp_norm_plan_build(sp_norm_plan *p, const float *bg, int w, int h, sp_error *err);
+void sp_norm_plan_free(sp_norm_plan *p);
+/* One read of the frame: the darkest sample of each tile, and (gain not NULL) the frame's gain as
+ * sp_norm_gain gives it. */
+void sp_norm_plan_scan(sp_norm_plan *p, const sp_image *frame, float *gain);
+/* sp_norm_mask for the frame last scanned (else the plain pass). */
+void sp_norm_mask_planned(sp_norm_plan *p, const sp_frame_view *v, float level, uint8_t *mask);
+
 #endif

@@ -676,6 +676,7 @@ typedef struct flow {
     /* measuring */
     sp_detector **det;
     float **bgbuf;
+    const float **planned; /* per worker: the background its detector has planned */
     const bgset *bg;
     const sp_detect_opts *dopt;
     int64_t pos0; /* selection position of sequence 0 */
@@ -725,6 +726,12 @@ static void measure_slot(flow *f, int id, int64_t seq)
     const float *b = bg_for(f->bg, f->pos0 + seq, f->bgbuf[id], f->npx);
     sp_detect_result r;
     sp_error_clear(&sl->err);
+    /* A background that stays (not the per-frame interpolation buffer) is planned once per worker. */
+    if (b != f->bgbuf[id] && b != f->planned[id]) {
+        if ((sl->rc = sp_detector_set_background(f->det[id], b, sl->img.width, sl->img.height, &sl->err)))
+            return;
+        f->planned[id] = b;
+    }
     sl->rc = sp_detect_run(f->det[id], &sl->img, b, f->dopt, 1, &r, &sl->err);
     if (!sl->rc && slot_store(sl, &r))
         sl->rc = sp_error_set(&sl->err, SP_ERR_INTERNAL, "measure: out of memory");
@@ -824,6 +831,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     pthread_t dec_th, *work_th = NULL;
     worker *wk = NULL;
     int8_t *sdone = NULL;
+    const float **planned = NULL;
     sp_image keep_img[KEEP_MAX] = {{0}};
     int64_t keep_pos[KEEP_MAX], keep_idx[KEEP_MAX];
     int nkeep = 0;
@@ -903,7 +911,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     bgbuf = calloc((size_t)nthreads, sizeof *bgbuf);
     work_th = calloc((size_t)nthreads, sizeof *work_th);
     wk = calloc((size_t)nthreads, sizeof *wk);
-    if (!slots || !sdone || !det || !bgbuf || !work_th || !wk) {
+    planned = calloc((size_t)nthreads, sizeof *planned);
+    if (!slots || !sdone || !det || !bgbuf || !work_th || !wk || !planned) {
         rc = sp_error_set(err, SP_ERR_INTERNAL, "measure: out of memory");
         goto done;
     }
@@ -967,6 +976,7 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
     fl.src = src;
     fl.det = det;
     fl.bgbuf = bgbuf;
+    fl.planned = planned;
     fl.bg = &bg;
     fl.dopt = &dopt;
     fl.pos0 = pos;
@@ -1158,6 +1168,7 @@ done:
     free(work_th);
     free(wk);
     free(sdone);
+    free(planned);
     sp_resume_free(rs);
     if (slots)
         for (int k = 0; k < nslots; k++) {
