@@ -9,10 +9,12 @@
 #include "detect/threshold.h"
 
 #include <stdlib.h>
+#include <string.h>
 
 struct sp_detector {
     int w, h;
     uint8_t *mask;
+    uint8_t *rows; /* per mask row: may hold a non-zero byte (see sp_norm_mask_planned) */
     int32_t *labels;
     sp_labeler *lb;
     sp_filler *fl;
@@ -54,6 +56,7 @@ void sp_detector_free(sp_detector *d)
     if (!d)
         return;
     free(d->mask);
+    free(d->rows);
     free(d->labels);
     free(d->bubbles);
     sp_norm_plan_free(&d->plan);
@@ -68,11 +71,15 @@ static int ensure_size(sp_detector *d, int w, int h, sp_error *err)
     if (d->w == w && d->h == h)
         return SP_OK;
     free(d->mask);
+    free(d->rows);
     free(d->labels);
     size_t n = (size_t)w * (size_t)h;
     d->mask = malloc(n);
+    d->rows = malloc((size_t)h);
     d->labels = malloc(n * sizeof *d->labels);
-    if (!d->mask || !d->labels) {
+    if (d->rows)
+        memset(d->rows, 1, (size_t)h); /* the new mask's content is unknown */
+    if (!d->mask || !d->rows || !d->labels) {
         d->w = d->h = 0;
         return sp_error_set(err, SP_ERR_INTERNAL, "detect: out of memory for a %dx%d frame", w, h);
     }
@@ -113,15 +120,17 @@ int sp_detect_run(sp_detector *d, const sp_image *frame, const float *bg, const 
         level = t < 0 ? (float)o->threshold : (float)(t + 1) * SP_OTSU_RANGE / SP_OTSU_BINS;
     }
     if (planned)
-        sp_norm_mask_planned(&d->plan, &v, level, d->mask);
-    else
+        sp_norm_mask_planned(&d->plan, &v, level, d->mask, d->rows);
+    else {
         sp_norm_mask(&v, level, d->mask);
-    if (o->fill && (rc = sp_fill_holes(d->fl, d->mask, w, h, err)))
+        memset(d->rows, 1, (size_t)h);
+    }
+    if (o->fill && (rc = sp_fill_holes_rows(d->fl, d->mask, w, h, d->rows, err)))
         return rc;
 
     const sp_component *comps = NULL;
     int nc = 0;
-    if ((rc = sp_label_run(d->lb, d->mask, w, w, h, d->labels, &comps, &nc, nthreads, err)))
+    if ((rc = sp_label_run_rows(d->lb, d->mask, w, w, h, d->rows, d->labels, &comps, &nc, nthreads, err)))
         return rc;
     if (nc > d->cap) {
         sp_bubble *nb = realloc(d->bubbles, sizeof *nb * (size_t)nc);

@@ -75,6 +75,11 @@ static int32_t find(int32_t *parent, int32_t a)
 
 int sp_fill_holes(sp_filler *f, uint8_t *mask, int w, int h, sp_error *err)
 {
+    return sp_fill_holes_rows(f, mask, w, h, NULL, err);
+}
+
+int sp_fill_holes_rows(sp_filler *f, uint8_t *mask, int w, int h, const uint8_t *rows, sp_error *err)
+{
     int rc;
     if (!f || !mask)
         return sp_error_set(err, SP_ERR_INTERNAL, "fill: null argument");
@@ -95,12 +100,13 @@ int sp_fill_holes(sp_filler *f, uint8_t *mask, int w, int h, sp_error *err)
         const uint8_t *row = mask + (size_t)y * (size_t)w;
         size_t p = y ? f->row_start[y - 1] : 0, pend = y ? f->row_start[y] : 0;
         brun *rs = f->runs;
+        const int empty = rows && !rows[y]; /* one background run, not read */
         int x = 0;
         while (x < w) {
-            int a0 = sp_scan_to(row, x, w, 1); /* next background pixel */
+            int a0 = empty ? 0 : sp_scan_to(row, x, w, 1); /* next background pixel */
             if (a0 >= w)
                 break;
-            int e = sp_scan_to(row, a0, w, 0);
+            int e = empty ? w : sp_scan_to(row, a0, w, 0);
             int a1 = e - 1;
             /* 4-connected: a run above must share a column. */
             while (p < pend && rs[p].x1 < a0)

@@ -124,7 +124,7 @@ static void unite(int32_t *parent, int32_t a, int32_t b)
 }
 
 /* First scan of one strip: runs, provisional labels, local equivalences. */
-static int scan_strip(strip *s, const uint8_t *mask, ptrdiff_t mstride, int w)
+static int scan_strip(strip *s, const uint8_t *mask, ptrdiff_t mstride, int w, const uint8_t *occupied)
 {
     int rows = s->y1 - s->y0;
     size_t per_row = (size_t)w / 2 + 1; /* most runs a row can hold */
@@ -140,7 +140,7 @@ static int scan_strip(strip *s, const uint8_t *mask, ptrdiff_t mstride, int w)
         const uint8_t *row = mask + (ptrdiff_t)(s->y0 + r) * mstride;
         size_t p = r ? s->row_start[r - 1] : 0, pend = r ? s->row_start[r] : 0;
         run *rs = s->runs;
-        int x = 0;
+        int x = occupied && !occupied[s->y0 + r] ? w : 0; /* a row known to be empty is not read */
         for (;;) {
             x = sp_scan_to(row, x, w, 0);
             if (x >= w)
@@ -214,6 +214,13 @@ static double central(int64_t m00, int64_t mab, int64_t ma, int64_t mb)
 int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, int h, int32_t *labels,
                  const sp_component **comps, int *n, int nthreads, sp_error *err)
 {
+    return sp_label_run_rows(lb, mask, mstride, w, h, NULL, labels, comps, n, nthreads, err);
+}
+
+int sp_label_run_rows(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, int h,
+                      const uint8_t *rows, int32_t *labels, const sp_component **comps, int *n, int nthreads,
+                      sp_error *err)
+{
     int rc = SP_OK;
     if (comps)
         *comps = NULL;
@@ -262,7 +269,7 @@ int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, 
     /* First scan, strips in parallel. */
 #pragma omp parallel for num_threads(ns) schedule(static, 1)
     for (int i = 0; i < ns; i++)
-        lb->strips[i].failed = scan_strip(&lb->strips[i], mask, mstride, w) != 0;
+        lb->strips[i].failed = scan_strip(&lb->strips[i], mask, mstride, w, rows) != 0;
     size_t total = 0;
     for (int i = 0; i < ns; i++) {
         if (lb->strips[i].failed)

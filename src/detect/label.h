@@ -34,6 +34,12 @@ void sp_labeler_free(sp_labeler *lb);
 int sp_label_run(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, int h, int32_t *labels,
                  const sp_component **comps, int *n, int nthreads, sp_error *err);
 
+/* The same, told which rows of mask hold foreground (rows[y] = 0: row y is all zeros and is not
+ * read; rows NULL: every row is read). */
+int sp_label_run_rows(sp_labeler *lb, const uint8_t *mask, ptrdiff_t mstride, int w, int h,
+                      const uint8_t *rows, int32_t *labels, const sp_component **comps, int *n, int nthreads,
+                      sp_error *err);
+
 /* Sparse writing (off by default): the labeller then clears only the runs it wrote into the same
  * labels buffer (same size) on its previous call, and writes only the new runs, instead of writing
  * every pixel: the result is the same as long as nobody else writes into that buffer between calls.

@@ -307,26 +307,34 @@ void sp_norm_plan_scan(sp_norm_plan *p, const sp_image *f, float *gain)
 }
 
 /* Mask of one tile row's pixels [x0, x1) of row y, as sp_norm_mask. */
-static void mask_span(const sp_image *f, const float *b, float k, int y, int x0, int x1, uint8_t *m)
+static int mask_span(const sp_image *f, const float *b, float k, int y, int x0, int x1, uint8_t *m)
 {
+    uint8_t any = 0;
     if (f->bytes == 1) {
         const uint8_t *s = sp_row8(f, y);
-        for (int x = x0; x < x1; x++)
+        for (int x = x0; x < x1; x++) {
             m[x] = (float)s[x] < k * b[x];
+            any |= m[x];
+        }
     } else {
         const uint16_t *s = sp_row16(f, y);
-        for (int x = x0; x < x1; x++)
+        for (int x = x0; x < x1; x++) {
             m[x] = (float)s[x] < k * b[x];
+            any |= m[x];
+        }
     }
+    return any;
 }
 
-void sp_norm_mask_planned(sp_norm_plan *p, const sp_frame_view *v, float level, uint8_t *mask)
+void sp_norm_mask_planned(sp_norm_plan *p, const sp_frame_view *v, float level, uint8_t *mask, uint8_t *rows)
 {
     const sp_image *f = v->frame;
     const int w = f->width, h = f->height, T = SP_NORM_TILE;
     const float k = level * v->gain;
     if (!(k > 0.f) || p->scanned != f || w != p->w || h != p->h) {
         sp_norm_mask(v, level, mask);
+        if (rows)
+            memset(rows, 1, (size_t)h);
         return;
     }
     /* k·b rounds monotonically in b, so a tile whose darkest sample is at least k·max(b) holds no
@@ -352,24 +360,31 @@ void sp_norm_mask_planned(sp_norm_plan *p, const sp_frame_view *v, float level, 
                     }
         for (int y = y0; y < y1; y++) {
             uint8_t *m = mask + (size_t)y * (size_t)w;
+            /* A row already clear from the last frame is not cleared again. */
+            const int dirty = !rows || rows[y];
             if (!any) {
-                memset(m, 0, (size_t)w);
+                if (dirty)
+                    memset(m, 0, (size_t)w);
+                if (rows)
+                    rows[y] = 0;
                 continue;
             }
             const float *b = v->bg + (size_t)y * (size_t)w;
             /* Runs of tiles that need the compare, the rest cleared. */
-            int tx = 0;
+            int tx = 0, set = 0;
             while (tx < p->ntx) {
                 int t1 = tx;
                 while (t1 < p->ntx && p->need[t1] == p->need[tx])
                     t1++;
                 int x0 = tx * T, x1 = t1 * T < w ? t1 * T : w;
                 if (p->need[tx])
-                    mask_span(f, b, k, y, x0, x1, m);
-                else
+                    set |= mask_span(f, b, k, y, x0, x1, m);
+                else if (dirty)
                     memset(m + x0, 0, (size_t)(x1 - x0));
                 tx = t1;
             }
+            if (rows)
+                rows[y] = (uint8_t)set;
         }
     }
 }

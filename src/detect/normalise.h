@@ -46,7 +46,10 @@ void sp_norm_plan_free(sp_norm_plan *p);
 /* One read of the frame: the darkest sample of each tile, and (gain not NULL) the frame's gain as
  * sp_norm_gain gives it. */
 void sp_norm_plan_scan(sp_norm_plan *p, const sp_image *frame, float *gain);
-/* sp_norm_mask for the frame last scanned (else the plain pass). */
-void sp_norm_mask_planned(sp_norm_plan *p, const sp_frame_view *v, float level, uint8_t *mask);
+/* sp_norm_mask for the frame last scanned (else the plain pass). rows (h bytes, or NULL) lets a
+ * caller that keeps its mask buffer skip clearing what is clear already: on entry, rows[y] = 0 says
+ * row y of mask holds only zeros; on return, rows[y] says whether row y holds a mask pixel (1 for
+ * every row after the plain pass). */
+void sp_norm_mask_planned(sp_norm_plan *p, const sp_frame_view *v, float level, uint8_t *mask, uint8_t *rows);
 
 #endif
