@@ -33,10 +33,13 @@ void sp_edges_release(sp_edges *e)
     free(e->ext);
     free(e->stack);
     free(e->opair);
+    free(e->cell_pair);
+    free(e->nv);
     free(e->pair_ok);
     free(e->pair_t);
     free(e->pair_w);
     free(e->vals);
+    free(e->vbin);
     free(e->xy);
     free(e->wid);
     free(e->pdir);
@@ -51,6 +54,19 @@ static inline int lab_at(const int32_t *labels, int w, int h, int x, int y)
     return labels[(size_t)y * (size_t)w + (size_t)x];
 }
 
+static inline uint64_t load8(const uint8_t *p)
+{
+    uint64_t v;
+    memcpy(&v, p, sizeof v);
+    return v;
+}
+
+/* Some byte of v is zero (the classic bit trick; bytes here are 0..2). */
+static inline int has_zero_byte(uint64_t v)
+{
+    return ((v - 0x0101010101010101ull) & ~v & 0x8080808080808080ull) != 0;
+}
+
 int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int label, const sp_component *c,
                       int holes_filled, sp_error *err)
 {
@@ -61,30 +77,36 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
     e->wy0 = c->y0 - 1;
     e->ww = c->x1 - c->x0 + 3;
     e->wh = c->y1 - c->y0 + 3;
-    size_t nw = (size_t)e->ww * (size_t)e->wh;
+    const size_t ww = (size_t)e->ww, nw = ww * (size_t)e->wh;
     if (nw > UINT32_MAX >> 2)
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d window too large", label);
     int rc = reserve((void **)&e->ext, &e->ext_cap, nw, 1, err);
-    if (!rc)
+    if (!rc && !holes_filled)
         rc = reserve((void **)&e->stack, &e->stack_cap, nw, sizeof(int32_t), err);
+    /* Room for an outline about the window's perimeter; a ragged one grows the list below. */
+    if (!rc)
+        rc = reserve((void **)&e->opair, &e->opair_cap, 4 * (ww + (size_t)e->wh) + 16, sizeof(uint32_t), err);
     if (rc)
         return rc;
     /* With holes filled, a cell the component encloses would be a hole of the mask (background) or
      * another component reached only through one (labels are 8-connected): neither exists, so all
      * cells outside the component are exterior. */
     const uint8_t other = holes_filled ? 2 : 1;
+    /* The window's frame columns [xa, xb): only its 1-px padding can fall off the frame. */
+    const int xa = e->wx0 < 0 ? -e->wx0 : 0, xb = e->wx0 + e->ww > w ? w - e->wx0 : e->ww;
     for (int y = 0; y < e->wh; y++) {
-        uint8_t *row = e->ext + (size_t)y * e->ww;
+        uint8_t *row = e->ext + (size_t)y * ww;
         int yy = e->wy0 + y;
         if (yy < 0 || yy >= h) {
-            memset(row, other, (size_t)e->ww);
+            memset(row, other, ww);
             continue;
         }
-        const int32_t *lr = labels + (size_t)yy * (size_t)w;
-        for (int x = 0; x < e->ww; x++) {
-            int xx = e->wx0 + x;
-            row[x] = xx >= 0 && xx < w && lr[xx] == label ? 0 : other;
-        }
+        memset(row, other, (size_t)xa);
+        memset(row + xb, other, ww - (size_t)xb);
+        const int32_t *lr = labels + (size_t)yy * (size_t)w + (size_t)(e->wx0 + xa);
+        uint8_t *o = row + xa;
+        for (int x = 0; x < xb - xa; x++)
+            o[x] = lr[x] == label ? 0 : other;
     }
     /* 4-connected flood of non-component cells from the window frame: the dual of the 8-connected
      * component, so a diagonal gap in the outline does not leak into an enclosed region. */
@@ -114,24 +136,44 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
         }
     }
     /* The outline pairs, listed once for the stages that walk them: a component pixel and its
-     * 4-neighbour in the exterior and inside the frame (the window's padding holds every neighbour). */
+     * 4-neighbour in the exterior and inside the frame (the window's padding holds every neighbour;
+     * padding off the frame is exterior but pairs with nothing). Runs of eight cells with no
+     * component cell, or eight component cells whose neighbours are all component, are skipped
+     * whole. */
+    const int left_off = e->wx0<0, right_off = e->wx0 + e->ww> w;
+    const int top_off = e->wy0<0, bottom_off = e->wy0 + e->wh> h;
     e->nopair = 0;
-    for (int wy = 1; wy < e->wh - 1; wy++)
-        for (int wx = 1; wx < e->ww - 1; wx++) {
-            size_t i = (size_t)wy * e->ww + wx;
-            if (e->ext[i] != 0)
-                continue;
-            int x = e->wx0 + wx, y = e->wy0 + wy;
-            for (int d = 0; d < 4; d++) {
-                int xx = x + dir4[d][0], yy = y + dir4[d][1];
-                if (xx < 0 || yy < 0 || xx >= w || yy >= h ||
-                    e->ext[(size_t)(wy + dir4[d][1]) * e->ww + (size_t)(wx + dir4[d][0])] != 2)
+    for (int wy = 1; wy < e->wh - 1; wy++) {
+        const uint8_t *r = e->ext + (size_t)wy * ww, *ru = r - ww, *rd = r + ww;
+        const int up_ok = !(wy == 1 && top_off), down_ok = !(wy == e->wh - 2 && bottom_off);
+        int wx = 1;
+        while (wx < e->ww - 1) {
+            if (wx + 8 < e->ww) { /* cells wx..wx+7 and their neighbours lie in the window */
+                uint64_t c0 = load8(r + wx);
+                if (!has_zero_byte(c0) ||
+                    (c0 | load8(r + wx - 1) | load8(r + wx + 1) | load8(ru + wx) | load8(rd + wx)) == 0) {
+                    wx += 8;
                     continue;
-                if ((rc = reserve((void **)&e->opair, &e->opair_cap, e->nopair + 1, sizeof(uint32_t), err)))
-                    return rc;
-                e->opair[e->nopair++] = (uint32_t)(i << 2 | (size_t)d);
+                }
             }
+            if (r[wx] == 0) {
+                if (e->nopair + 4 > e->opair_cap &&
+                    (rc = reserve((void **)&e->opair, &e->opair_cap, e->nopair + 4, sizeof(uint32_t), err)))
+                    return rc;
+                uint32_t i = (uint32_t)((size_t)wy * ww + (size_t)wx) << 2;
+                /* dir4's order: +x, -x, +y, -y. */
+                if (r[wx + 1] == 2 && !(wx == e->ww - 2 && right_off))
+                    e->opair[e->nopair++] = i | 0;
+                if (r[wx - 1] == 2 && !(wx == 1 && left_off))
+                    e->opair[e->nopair++] = i | 1;
+                if (rd[wx] == 2 && down_ok)
+                    e->opair[e->nopair++] = i | 2;
+                if (ru[wx] == 2 && up_ok)
+                    e->opair[e->nopair++] = i | 3;
+            }
+            wx++;
         }
+    }
     return SP_OK;
 }
 
@@ -155,81 +197,180 @@ static inline int ext_at(const sp_edges *e, int x, int y)
     return e->ext[(size_t)wy * e->ww + wx];
 }
 
+/* One row of the patch: sp_view_norm's arithmetic, bit for bit (raw / (bg · gain) where that divisor
+ * is positive, else 0). Dividing by 1 where the result is then multiplied by 0 (raw is finite) keeps
+ * the loop free of branches, so the compiler vectorises it. */
+static void norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict bg, float gain,
+                      int n)
+{
+    for (int i = 0; i < n; i++) {
+        float b = bg[i] * gain;
+        int pos = b > 0.f;
+        float d = pos ? b : 1.f;
+        float q = (float)raw[i] / d;
+        o[i] = q * (float)pos;
+    }
+}
+
+static void norm_row16(float *restrict o, const uint16_t *restrict raw, const float *restrict bg, float gain,
+                       int n)
+{
+    for (int i = 0; i < n; i++) {
+        float b = bg[i] * gain;
+        int pos = b > 0.f;
+        float d = pos ? b : 1.f;
+        float q = (float)raw[i] / d;
+        o[i] = q * (float)pos;
+    }
+}
+
+/* Fill e->nv over the bounding box grown by SP_EDGE_REACH_PX, clipped to the frame. Its size is at
+ * most the frame's, which the sources bound (sp_check_dims). */
+static int make_patch(sp_edges *e, const sp_frame_view *v, const sp_component *c, sp_error *err)
+{
+    const sp_image *f = v->frame;
+    const int w = f->width, h = f->height, R = SP_EDGE_REACH_PX;
+    int x0 = c->x0 > R ? c->x0 - R : 0, y0 = c->y0 > R ? c->y0 - R : 0;
+    int x1 = c->x1 < w - 1 - R ? c->x1 + R : w - 1, y1 = c->y1 < h - 1 - R ? c->y1 + R : h - 1;
+    e->px0 = x0;
+    e->py0 = y0;
+    e->pw = x1 - x0 + 1;
+    e->ph = y1 - y0 + 1;
+    int rc = reserve((void **)&e->nv, &e->nv_cap, (size_t)e->pw * (size_t)e->ph, sizeof(float), err);
+    if (rc)
+        return rc;
+    for (int y = y0; y <= y1; y++) {
+        float *o = e->nv + (size_t)(y - y0) * (size_t)e->pw;
+        const float *bg = v->bg + (size_t)y * (size_t)w + (size_t)x0;
+        if (f->bytes == 1)
+            norm_row8(o, sp_row8(f, y) + x0, bg, v->gain, e->pw);
+        else
+            norm_row16(o, sp_row16(f, y) + x0, bg, v->gain, e->pw);
+    }
+    return SP_OK;
+}
+
+/* Patch value at frame position (x, y), which must lie in the patch. */
+static inline float patch_at(const sp_edges *e, int x, int y)
+{
+    return e->nv[(size_t)(y - e->py0) * (size_t)e->pw + (size_t)(x - e->px0)];
+}
+
 #define QBINS 1024 /* transmission bins over [0, 2) for the quantile's first pass */
 
-/* q-quantile (0..1): the element of rank round(q·(n−1)), exact. Large arrays go through a histogram
- * of the transmissions first (one branch-free pass), then a selection among the few values of the
- * bin that holds the rank: quickselect's branches on thousands of values cost several times more. */
-static float quantile(float *v, size_t n, double q)
+static inline int qbin(float t)
 {
+    float f = t * (QBINS / 2);
+    return !(f >= 0.f) ? 0 : f >= (float)(QBINS - 1) ? QBINS - 1 : (int)f;
+}
+
+/* Samples for a quantile, with each one's histogram bin recorded as it is gathered. */
+typedef struct gatherer {
+    float *v;
+    uint16_t *bin;
+    size_t n;
+    uint32_t hist[QBINS];
+} gatherer;
+
+static int gather_begin(sp_edges *e, gatherer *g, size_t cap, sp_error *err)
+{
+    size_t c2 = e->vbin_cap;
+    int rc = reserve((void **)&e->vals, &e->vals_cap, cap, sizeof(float), err);
+    if (!rc)
+        rc = reserve((void **)&e->vbin, &c2, cap, sizeof(uint16_t), err);
+    if (rc)
+        return rc;
+    e->vbin_cap = c2;
+    g->v = e->vals;
+    g->bin = e->vbin;
+    g->n = 0;
+    memset(g->hist, 0, sizeof g->hist);
+    return SP_OK;
+}
+
+static inline void gather_add(gatherer *g, float t)
+{
+    int b = qbin(t);
+    g->v[g->n] = t;
+    g->bin[g->n++] = (uint16_t)b;
+    g->hist[b]++;
+}
+
+/* q-quantile (0..1) of the gathered samples: the element of rank round(q·(n−1)), exact (samples are
+ * never NaN, so the value of that rank is the same whatever the method). Large sets go through the
+ * histogram first, then a selection among the few values of the bin that holds the rank:
+ * quickselect's branches on thousands of values cost several times more. Reorders the samples. */
+static float quantile(gatherer *g, double q)
+{
+    size_t n = g->n;
     size_t k = (size_t)(q * (double)(n - 1) + 0.5);
     if (k >= n)
         k = n - 1;
     if (n < 256)
-        return sp_select_float(v, n, k);
-    uint32_t hist[QBINS];
-    memset(hist, 0, sizeof hist);
-    for (size_t i = 0; i < n; i++) {
-        float f = v[i] * (QBINS / 2);
-        int b = !(f >= 0.f) ? 0 : f >= (float)(QBINS - 1) ? QBINS - 1 : (int)f;
-        hist[b]++;
-    }
+        return sp_select_float(g->v, n, k);
     size_t below = 0;
     int bin = 0;
-    while (below + hist[bin] <= k)
-        below += hist[bin++];
+    while (below + g->hist[bin] <= k)
+        below += g->hist[bin++];
     /* Move the bin's values to the front (order among them does not matter to the selection). */
     size_t m = 0;
     for (size_t i = 0; i < n; i++) {
-        float f = v[i] * (QBINS / 2);
-        int b = !(f >= 0.f) ? 0 : f >= (float)(QBINS - 1) ? QBINS - 1 : (int)f;
-        if (b == bin) {
-            float t = v[m];
-            v[m++] = v[i];
-            v[i] = t;
-        }
+        g->v[m] = g->v[i];
+        m += g->bin[i] == bin;
     }
-    return sp_select_float(v, m, k - below);
+    return sp_select_float(g->v, m, k - below);
 }
 
 int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, sp_error *err)
 {
     int w = v->frame->width, h = v->frame->height;
-    int rc = reserve((void **)&e->vals, &e->vals_cap, (size_t)c->area, sizeof(float), err);
+    int rc = make_patch(e, v, c, err);
     if (rc)
         return rc;
+    gatherer g;
+    if ((rc = gather_begin(e, &g, (size_t)c->area, err)))
+        return rc;
 
-    size_t nv = 0;
+    const size_t lim = e->vals_cap < e->vbin_cap ? e->vals_cap : e->vbin_cap;
     float nmin = 1e30f;
-    for (int y = c->y0; y <= c->y1; y++)
-        for (int x = c->x0; x <= c->x1; x++)
-            if (e->ext[(size_t)(y - e->wy0) * e->ww + (size_t)(x - e->wx0)] == 0 && nv < e->vals_cap) {
-                float t = sp_view_norm(v, x, y);
-                e->vals[nv++] = t;
+    const int bw = c->x1 - c->x0 + 1;
+    for (int y = c->y0; y <= c->y1; y++) {
+        const uint8_t *er = e->ext + (size_t)(y - e->wy0) * e->ww + (size_t)(c->x0 - e->wx0);
+        const float *pr = e->nv + (size_t)(y - e->py0) * (size_t)e->pw + (size_t)(c->x0 - e->px0);
+        for (int x = 0; x < bw; x++)
+            if (er[x] == 0 && g.n < lim) {
+                float t = pr[x];
+                gather_add(&g, t);
                 if (t < nmin)
                     nmin = t;
             }
-    if (nv == 0)
+    }
+    if (g.n == 0)
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has no pixels", label);
     e->n_min = nmin;
-    e->n_dark = quantile(e->vals, nv, 0.2);
+    e->n_dark = quantile(&g, 0.2);
 
-    nv = 0;
-    if ((rc = reserve((void **)&e->vals, &e->vals_cap, 8 * e->nopair, sizeof(float), err)))
+    if ((rc = gather_begin(e, &g, 8 * e->nopair, err)))
         return rc;
+    const ptrdiff_t pw = e->pw;
     for (size_t q = 0; q < e->nopair; q++) {
         int x, y, dx, dy;
         opair_at(e, q, &x, &y, &dx, &dy);
-        for (int k = 3; k <= 10; k++) {
-            int xx = x + k * dx, yy = y + k * dy;
-            if (lab_at(labels, w, h, xx, yy) != 0)
-                break; /* left the frame or met another bubble */
-            e->vals[nv++] = sp_view_norm(v, xx, yy);
+        /* Samples k = 3..10 out, up to the frame's edge or another bubble. */
+        int kmax = dx > 0 ? w - 1 - x : dx < 0 ? x : dy > 0 ? h - 1 - y : y;
+        kmax = kmax < SP_EDGE_REACH_PX ? kmax : SP_EDGE_REACH_PX;
+        const int32_t *lp = labels + (size_t)y * (size_t)w + (size_t)x;
+        const float *pp = e->nv + (size_t)(y - e->py0) * (size_t)pw + (size_t)(x - e->px0);
+        const ptrdiff_t ls = dx + (ptrdiff_t)dy * w, ps = dx + (ptrdiff_t)dy * pw;
+        for (int k = 3; k <= kmax; k++) {
+            if (lp[k * ls] != 0)
+                break; /* met another bubble */
+            gather_add(&g, pp[k * ps]);
         }
     }
     /* No visible surroundings: the background model's own light level. */
-    e->n_light = nv ? quantile(e->vals, nv, 0.5) : 1.0f;
+    e->n_light = g.n ? quantile(&g, 0.5) : 1.0f;
     return SP_OK;
 }
 
@@ -259,15 +400,24 @@ static double profile_at(const double s[8], double t)
     return s[k + 3] + f * (s[k + 4] - s[k + 3]);
 }
 
-/* Profile s[k + 3] = n(p + k·d), k = −3..4, across the outline at component pixel (x, y) towards its
- * exterior neighbour (x + dx, y + dy); NaN marks samples off the frame. */
-static void profile(const sp_frame_view *v, int x, int y, int dx, int dy, double s[8])
+static inline int in_patch(const sp_edges *e, int x, int y)
 {
-    int w = v->frame->width, h = v->frame->height;
-    for (int k = -3; k <= 4; k++) {
-        int xx = x + k * dx, yy = y + k * dy;
-        s[k + 3] = (xx < 0 || yy < 0 || xx >= w || yy >= h) ? NAN : (double)sp_view_norm(v, xx, yy);
+    return x >= e->px0 && y >= e->py0 && x < e->px0 + e->pw && y < e->py0 + e->ph;
+}
+
+/* Profile s[k + 3] = n(p + k·d), k = −3..4, across the outline at pixel (x, y) of the window towards
+ * its neighbour (x + dx, y + dy); NaN marks samples off the frame (within the reach, off the patch). */
+static void profile(const sp_edges *e, int x, int y, int dx, int dy, double s[8])
+{
+    const float *p = e->nv + (size_t)(y - e->py0) * (size_t)e->pw + (size_t)(x - e->px0);
+    const ptrdiff_t st = dx + (ptrdiff_t)dy * e->pw;
+    if (in_patch(e, x - 3 * dx, y - 3 * dy) && in_patch(e, x + 4 * dx, y + 4 * dy)) {
+        for (int k = -3; k <= 4; k++) /* both ends in the patch, so every sample between */
+            s[k + 3] = (double)p[k * st];
+        return;
     }
+    for (int k = -3; k <= 4; k++)
+        s[k + 3] = in_patch(e, x + k * dx, y + k * dy) ? (double)p[k * st] : NAN;
 }
 
 /* Nearest upward crossing of `level` at or beyond position t0 (outward) or before it (inward). */
@@ -290,11 +440,11 @@ static double crossing_near(const double s[8], double level, double t0)
 /* One outline pair: the crossing t (samples along the pair direction from the component pixel),
  * the inner level of its local step (NaN if unread) and the width between the 25 % and 75 % crossings
  * of that step (NaN if either falls off the profile). Returns 0 when no crossing was found. */
-static int pair_point(const sp_frame_view *v, int x, int y, int dx, int dy, double glevel, double light,
+static int pair_point(const sp_edges *e, int x, int y, int dx, int dy, double glevel, double light,
                       double frac, double *t_out, double *nin_out, double *w_out)
 {
     double s[8];
-    profile(v, x, y, dx, dy, s);
+    profile(e, x, y, dx, dy, s);
     double t = crossing(s, glevel);
     *nin_out = NAN;
     *w_out = NAN;
@@ -319,6 +469,7 @@ static int pair_point(const sp_frame_view *v, int x, int y, int dx, int dy, doub
 int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, double frac, sp_error *err)
 {
+    (void)v;      /* the transmission patch was filled by sp_edges_levels */
     (void)labels; /* the outline pairs were listed by sp_edges_exterior */
     (void)label;
     (void)c;
@@ -328,45 +479,44 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     e->n = 0;
 
     /* The crossing of edge_level of the local step, from the transmission SP_EDGE_INSET_PX inside
-     * the crossing of the component-wide level to the light. */
-    size_t nin_n = 0;
-    if (e->nopair > e->pair_cap) {
+     * the crossing of the component-wide level to the light. Every buffer holds one entry per pair. */
+    const size_t np = e->nopair;
+    if (np > e->pair_cap) {
         size_t c1 = e->pair_cap, c2 = e->pair_cap, c3 = e->pair_cap;
-        if ((rc = reserve((void **)&e->pair_ok, &c1, e->nopair, 1, err)) ||
-            (rc = reserve((void **)&e->pair_t, &c2, e->nopair, sizeof(double), err)) ||
-            (rc = reserve((void **)&e->pair_w, &c3, e->nopair, sizeof(float), err)))
+        if ((rc = reserve((void **)&e->pair_ok, &c1, np, 1, err)) ||
+            (rc = reserve((void **)&e->pair_t, &c2, np, sizeof(double), err)) ||
+            (rc = reserve((void **)&e->pair_w, &c3, np, sizeof(float), err)))
             return rc;
         e->pair_cap = c1 < c2 ? (c1 < c3 ? c1 : c3) : (c2 < c3 ? c2 : c3);
     }
+    if ((rc = reserve((void **)&e->xy, &e->xy_cap, 2 * np, sizeof(double), err)))
+        return rc;
+    if (np > e->aux_cap) {
+        size_t cap = e->aux_cap;
+        size_t cap2 = e->aux_cap;
+        if ((rc = reserve((void **)&e->wid, &cap, np, sizeof(float), err)) ||
+            (rc = reserve((void **)&e->pdir, &cap2, 2 * np, 1, err)))
+            return rc;
+        e->aux_cap = cap < cap2 / 2 ? cap : cap2 / 2;
+    }
+    gatherer g;
+    if ((rc = gather_begin(e, &g, np, err)))
+        return rc;
     e->cached_level = glevel;
     e->cached_light = light;
-    for (size_t q = 0; q < e->nopair; q++) {
+    for (size_t q = 0; q < np; q++) {
         int x, y, dx, dy;
         opair_at(e, q, &x, &y, &dx, &dy);
         double t;
         double nin;
         double wd;
-        e->pair_ok[q] = (int8_t)pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd);
+        e->pair_ok[q] = (int8_t)pair_point(e, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd);
         e->pair_t[q] = t;
         e->pair_w[q] = (float)wd;
         if (!e->pair_ok[q])
             continue;
-        if (isfinite(nin)) {
-            if ((rc = reserve((void **)&e->vals, &e->vals_cap, nin_n + 1, sizeof(float), err)))
-                return rc;
-            e->vals[nin_n++] = (float)nin;
-        }
-        size_t need = (size_t)e->n + 1;
-        if ((rc = reserve((void **)&e->xy, &e->xy_cap, 2 * need, sizeof(double), err)))
-            return rc;
-        if (need > e->aux_cap) {
-            size_t cap = e->aux_cap;
-            size_t cap2 = e->aux_cap;
-            if ((rc = reserve((void **)&e->wid, &cap, need, sizeof(float), err)) ||
-                (rc = reserve((void **)&e->pdir, &cap2, 2 * need, 1, err)))
-                return rc;
-            e->aux_cap = cap < cap2 / 2 ? cap : cap2 / 2;
-        }
+        if (isfinite(nin))
+            gather_add(&g, (float)nin);
         e->xy[2 * e->n] = x + t * dx;
         e->xy[2 * e->n + 1] = y + t * dy;
         e->wid[e->n] = (float)wd;
@@ -375,27 +525,26 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
         e->n++;
     }
     /* Median inner level of the local steps, for the partial-coverage area. */
-    e->n_step_in = nin_n ? quantile(e->vals, nin_n, 0.5) : e->n_dark;
+    e->n_step_in = g.n ? quantile(&g, 0.5) : e->n_dark;
     return SP_OK;
 }
 
-/* Index of outline pair (x, y) → (x + dx, y + dy) in the sorted pair list, or -1. */
+/* Index of outline pair (x, y) → (x + dx, y + dy) in the pair list, or -1: the cell's pairs follow
+ * its first one (e->cell_pair), at most four, in dir4's order. */
 static long find_pair(const sp_edges *e, int x, int y, int dx, int dy)
 {
     int wx = x - e->wx0, wy = y - e->wy0;
     if (wx < 0 || wy < 0 || wx >= e->ww || wy >= e->wh)
         return -1;
-    int d = dx == 1 ? 0 : dx == -1 ? 1 : dy == 1 ? 2 : 3; /* dir4's order */
-    uint32_t key = (uint32_t)(((size_t)wy * (size_t)e->ww + (size_t)wx) << 2 | (size_t)d);
-    size_t a = 0, b = e->nopair;
-    while (a < b) {
-        size_t m = a + (b - a) / 2;
-        if (e->opair[m] < key)
-            a = m + 1;
-        else
-            b = m;
-    }
-    return a < e->nopair && e->opair[a] == key ? (long)a : -1;
+    uint32_t d = dx == 1 ? 0 : dx == -1 ? 1 : dy == 1 ? 2 : 3; /* dir4's order */
+    size_t cell = (size_t)wy * (size_t)e->ww + (size_t)wx;
+    int32_t q = e->cell_pair[cell];
+    if (q < 0)
+        return -1;
+    for (size_t k = (size_t)q; k < e->nopair && e->opair[k] >> 2 == cell; k++)
+        if ((e->opair[k] & 3) == d)
+            return (long)k;
+    return -1;
 }
 
 /* Inside for the trace: any window cell not reached from outside (component or enclosed). */
@@ -422,10 +571,25 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
     if (sx < 0)
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has no pixel on its top row", label);
     const int cached = e->pair_cap >= e->nopair && e->cached_level == glevel && e->cached_light == light;
+    int rc;
+    if (cached) {
+        /* Each window cell's first outline pair, for find_pair. */
+        size_t nw = (size_t)e->ww * (size_t)e->wh;
+        if ((rc = reserve((void **)&e->cell_pair, &e->cell_pair_cap, nw, sizeof(int32_t), err)))
+            return rc;
+        memset(e->cell_pair, 0xff, nw * sizeof(int32_t));
+        for (size_t k = e->nopair; k-- > 0;)
+            e->cell_pair[e->opair[k] >> 2] = (int32_t)k;
+    }
+    /* Each crack is walked once: one per outline pair, plus those along the frame's edge. */
     size_t maxc = 4 * (size_t)c->area + 4 * (size_t)(e->ww + e->wh) + 8;
-    int x = sx, y = sy, d = 3, rc;
+    if ((rc = reserve((void **)&e->cpt, &e->c_cap, e->nopair + 2 * (size_t)(e->ww + e->wh) + 8,
+                      sizeof(sp_contour_pt), err)))
+        return rc;
+    int x = sx, y = sy, d = 3;
     for (size_t it = 0; it < maxc; it++) {
-        if ((rc = reserve((void **)&e->cpt, &e->c_cap, (size_t)e->nc + 1, sizeof(sp_contour_pt), err)))
+        if ((size_t)e->nc >= e->c_cap &&
+            (rc = reserve((void **)&e->cpt, &e->c_cap, (size_t)e->nc + 1, sizeof(sp_contour_pt), err)))
             return rc;
         int dx = D[d][0], dy = D[d][1];
         double t = 0, nin, wd = NAN;
@@ -438,7 +602,7 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
                 t = e->pair_t[q];
                 wd = e->pair_w[q];
             } else {
-                ok = pair_point(v, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd);
+                ok = pair_point(e, x, y, dx, dy, glevel, light, frac, &t, &nin, &wd);
             }
             ok = ok && fabs(t) <= 2.5;
         }
@@ -504,7 +668,7 @@ double sp_edges_area(const sp_edges *e, const sp_frame_view *v, const int32_t *l
             }
             if (!band || (state == 2 && lab != 0))
                 continue; /* far exterior, or another bubble's pixel */
-            double cov = ((double)e->n_light - (double)sp_view_norm(v, x, y)) / step;
+            double cov = ((double)e->n_light - (double)patch_at(e, x, y)) / step;
             /* Loose clamp only: clamping at 0 and 1 would turn the noise of the band into a bias. */
             if (cov < -0.25)
                 cov = -0.25;

@@ -157,8 +157,10 @@ static double diam_uncertainty(double d, double rms, int n, double span, double 
 static double fit_rms(const sp_edges *e, const sp_ellipse *el)
 {
     double ss = 0;
+    sp_ellipse_frame f;
+    sp_ellipse_frame_init(&f, el);
     for (int i = 0; i < e->n; i++) {
-        double d = sp_ellipse_distance(el, e->xy[2 * i], e->xy[2 * i + 1]);
+        double d = sp_ellipse_frame_distance(&f, e->xy[2 * i], e->xy[2 * i + 1]);
         ss += d * d;
     }
     return e->n ? sqrt(ss / e->n) : 0;
@@ -312,13 +314,17 @@ static int piece_on_edge(const sp_frame_view *v, const sp_edges *e, const sp_spl
     const sp_ellipse *el = &pc[i].el;
     double step = (double)e->n_light - (double)e->n_step_in;
     int m = 0;
+    sp_ellipse_frame f[SP_SPLIT_MAX];
+    for (int j = 0; j < np; j++)
+        sp_ellipse_frame_init(&f[j], &pc[j].el);
+    const double ct = f[i].c, st = f[i].s;
     for (int k = 0; k < 64; k++) {
-        double t = 2 * M_PI * k / 64, ct = cos(el->theta), st = sin(el->theta);
+        double t = 2 * M_PI * k / 64;
         double u = el->a * cos(t), w = el->b * sin(t);
         double x = el->cx + u * ct - w * st, y = el->cy + u * st + w * ct;
         int covered = 0;
         for (int j = 0; j < np && !covered; j++)
-            covered = j != i && sp_ellipse_distance(&pc[j].el, x, y) < 1.5;
+            covered = j != i && sp_ellipse_frame_distance(&f[j], x, y) < 1.5;
         double n = covered ? NAN : view_bilinear(v, x, y);
         if (isfinite(n))
             scratch[m++] = (float)((n - e->n_step_in) / step - frac);
