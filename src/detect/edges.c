@@ -40,6 +40,7 @@ void sp_edges_release(sp_edges *e)
     free(e->pair_w);
     free(e->vals);
     free(e->vbin);
+    free(e->vsel);
     free(e->xy);
     free(e->wid);
     free(e->pdir);
@@ -65,6 +66,14 @@ static inline uint64_t load8(const uint8_t *p)
 static inline int has_zero_byte(uint64_t v)
 {
     return ((v - 0x0101010101010101ull) & ~v & 0x8080808080808080ull) != 0;
+}
+
+/* One window row: 0 for the component's cells, `other` elsewhere (a separate function so the
+ * compiler knows the two rows do not overlap, and vectorises). */
+static void window_row(uint8_t *restrict o, const int32_t *restrict lr, int label, uint8_t other, int n)
+{
+    for (int x = 0; x < n; x++)
+        o[x] = lr[x] == label ? 0 : other;
 }
 
 int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int label, const sp_component *c,
@@ -103,10 +112,7 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
         }
         memset(row, other, (size_t)xa);
         memset(row + xb, other, ww - (size_t)xb);
-        const int32_t *lr = labels + (size_t)yy * (size_t)w + (size_t)(e->wx0 + xa);
-        uint8_t *o = row + xa;
-        for (int x = 0; x < xb - xa; x++)
-            o[x] = lr[x] == label ? 0 : other;
+        window_row(row + xa, labels + (size_t)yy * (size_t)w + (size_t)(e->wx0 + xa), label, other, xb - xa);
     }
     /* 4-connected flood of non-component cells from the window frame: the dual of the 8-connected
      * component, so a diagonal gap in the outline does not leak into an enclosed region. */
@@ -177,14 +183,25 @@ int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int labe
     return SP_OK;
 }
 
-/* Pixel (x, y) and direction (dx, dy) of outline pair k. */
-static inline void opair_at(const sp_edges *e, size_t k, int *x, int *y, int *dx, int *dy)
+/* A walk over the outline pairs in their (raster) order: it follows the window row, so finding a
+ * pair's pixel needs no division. */
+typedef struct pair_walk {
+    size_t row0; /* window index of the row's first cell */
+    int wy;
+} pair_walk;
+
+/* Pixel (x, y) and direction (dx, dy) of outline pair k, k not below the walk's last. */
+static inline void opair_at(const sp_edges *e, pair_walk *pw, size_t k, int *x, int *y, int *dx, int *dy)
 {
     uint32_t p = e->opair[k];
     size_t i = p >> 2;
     int d = (int)(p & 3);
-    *x = e->wx0 + (int)(i % (size_t)e->ww);
-    *y = e->wy0 + (int)(i / (size_t)e->ww);
+    while (i >= pw->row0 + (size_t)e->ww) {
+        pw->row0 += (size_t)e->ww;
+        pw->wy++;
+    }
+    *x = e->wx0 + (int)(i - pw->row0);
+    *y = e->wy0 + pw->wy;
     *dx = dir4[d][0];
     *dy = dir4[d][1];
 }
@@ -200,8 +217,8 @@ static inline int ext_at(const sp_edges *e, int x, int y)
 /* One row of the patch: sp_view_norm's arithmetic, bit for bit (raw / (bg · gain) where that divisor
  * is positive, else 0). Dividing by 1 where the result is then multiplied by 0 (raw is finite) keeps
  * the loop free of branches, so the compiler vectorises it. */
-static void norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict bg, float gain,
-                      int n)
+__attribute__((target_clones("avx2", "default"))) static void
+norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict bg, float gain, int n)
 {
     for (int i = 0; i < n; i++) {
         float b = bg[i] * gain;
@@ -212,8 +229,8 @@ static void norm_row8(float *restrict o, const uint8_t *restrict raw, const floa
     }
 }
 
-static void norm_row16(float *restrict o, const uint16_t *restrict raw, const float *restrict bg, float gain,
-                       int n)
+__attribute__((target_clones("avx2", "default"))) static void
+norm_row16(float *restrict o, const uint16_t *restrict raw, const float *restrict bg, float gain, int n)
 {
     for (int i = 0; i < n; i++) {
         float b = bg[i] * gain;
@@ -239,13 +256,26 @@ static int make_patch(sp_edges *e, const sp_frame_view *v, const sp_component *c
     int rc = reserve((void **)&e->nv, &e->nv_cap, (size_t)e->pw * (size_t)e->ph, sizeof(float), err);
     if (rc)
         return rc;
+    /* Every read moves along a row or a column from a pixel of the window (bounding box grown by 1),
+     * so the corners beyond both its row and its column range are never read: marked NaN, not
+     * computed. */
+    const int cx0 = c->x0 - 1 > x0 ? c->x0 - 1 : x0, cx1 = c->x1 + 1 < x1 ? c->x1 + 1 : x1;
     for (int y = y0; y <= y1; y++) {
         float *o = e->nv + (size_t)(y - y0) * (size_t)e->pw;
-        const float *bg = v->bg + (size_t)y * (size_t)w + (size_t)x0;
+        int a = x0, b = x1; /* columns computed */
+        if (y < c->y0 - 1 || y > c->y1 + 1) {
+            a = cx0;
+            b = cx1;
+            for (int x = x0; x < a; x++)
+                o[x - x0] = NAN;
+            for (int x = b + 1; x <= x1; x++)
+                o[x - x0] = NAN;
+        }
+        const float *bg = v->bg + (size_t)y * (size_t)w + (size_t)a;
         if (f->bytes == 1)
-            norm_row8(o, sp_row8(f, y) + x0, bg, v->gain, e->pw);
+            norm_row8(o + (a - x0), sp_row8(f, y) + a, bg, v->gain, b - a + 1);
         else
-            norm_row16(o, sp_row16(f, y) + x0, bg, v->gain, e->pw);
+            norm_row16(o + (a - x0), sp_row16(f, y) + a, bg, v->gain, b - a + 1);
     }
     return SP_OK;
 }
@@ -257,49 +287,90 @@ static inline float patch_at(const sp_edges *e, int x, int y)
 }
 
 #define QBINS 1024 /* transmission bins over [0, 2) for the quantile's first pass */
+#define QBINS2 256 /* sub-bins of one bin, for its second */
 
-static inline int qbin(float t)
-{
-    float f = t * (QBINS / 2);
-    return !(f >= 0.f) ? 0 : f >= (float)(QBINS - 1) ? QBINS - 1 : (int)f;
-}
-
-/* Samples for a quantile, with each one's histogram bin recorded as it is gathered. */
+/* Samples for a quantile (in e->vals; e->vbin holds as many bins). */
 typedef struct gatherer {
     float *v;
     uint16_t *bin;
+    float *sel;
     size_t n;
-    uint32_t hist[QBINS];
 } gatherer;
 
 static int gather_begin(sp_edges *e, gatherer *g, size_t cap, sp_error *err)
 {
-    size_t c2 = e->vbin_cap;
     int rc = reserve((void **)&e->vals, &e->vals_cap, cap, sizeof(float), err);
     if (!rc)
-        rc = reserve((void **)&e->vbin, &c2, cap, sizeof(uint16_t), err);
+        rc = reserve((void **)&e->vbin, &e->vbin_cap, cap, sizeof(uint16_t), err);
+    if (!rc)
+        rc = reserve((void **)&e->vsel, &e->vsel_cap, cap, sizeof(float), err);
     if (rc)
         return rc;
-    e->vbin_cap = c2;
     g->v = e->vals;
     g->bin = e->vbin;
+    g->sel = e->vsel;
     g->n = 0;
-    memset(g->hist, 0, sizeof g->hist);
     return SP_OK;
 }
 
-static inline void gather_add(gatherer *g, float t)
+/* Histogram bins of the samples v[0..n) scaled by `scale` after subtracting `base`, clamped to
+ * [0, nb − 1] (NaN to 0): a monotone map, so a bin's samples all lie between those of the bins
+ * around it. A loop of its own, which vectorises. */
+static void bins_of(const float *restrict v, uint16_t *restrict bin, size_t n, float base, float scale,
+                    int nb)
 {
-    int b = qbin(t);
-    g->v[g->n] = t;
-    g->bin[g->n++] = (uint16_t)b;
-    g->hist[b]++;
+    for (size_t i = 0; i < n; i++) {
+        float f = (v[i] - base) * scale;
+        f = f > 0.f ? f : 0.f;
+        f = f < (float)(nb - 1) ? f : (float)(nb - 1);
+        bin[i] = (uint16_t)(int)f;
+    }
 }
 
-/* q-quantile (0..1) of the gathered samples: the element of rank round(q·(n−1)), exact (samples are
- * never NaN, so the value of that rank is the same whatever the method). Large sets go through the
- * histogram first, then a selection among the few values of the bin that holds the rank:
- * quickselect's branches on thousands of values cost several times more. Reorders the samples. */
+/* The bin holding rank k of n binned samples; *below = samples in the bins before it. Two tables,
+ * even and odd samples: neighbours often share a bin, and one table would make each increment wait
+ * for the last. */
+static int rank_bin(const uint16_t *bin, size_t n, int nb, size_t k, size_t *below)
+{
+    uint32_t hist[2][QBINS];
+    memset(hist[0], 0, (size_t)nb * sizeof hist[0][0]);
+    memset(hist[1], 0, (size_t)nb * sizeof hist[1][0]);
+    size_t i = 0;
+    for (; i + 1 < n; i += 2) {
+        hist[0][bin[i]]++;
+        hist[1][bin[i + 1]]++;
+    }
+    if (i < n)
+        hist[0][bin[i]]++;
+    size_t s = 0;
+    int b = 0;
+    while (s + hist[0][b] + hist[1][b] <= k) {
+        s += hist[0][b] + hist[1][b];
+        b++;
+    }
+    *below = s;
+    return b;
+}
+
+/* The samples of bin b copied to out, without a branch (a bin often holds a tenth of the samples, too
+ * many for a branch to be predicted); returns their count. */
+static size_t bin_members(const float *restrict v, const uint16_t *restrict bin, size_t n, int b,
+                          float *restrict out)
+{
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++) {
+        out[m] = v[i];
+        m += bin[i] == b;
+    }
+    return m;
+}
+
+/* q-quantile (0..1) of the gathered samples: the element of rank round(q·(n−1)), exact (its value does
+ * not depend on the method). Large sets go through histograms first (a radix selection): QBINS bins
+ * of transmission over [0, 2), then, when the rank's bin still holds many samples (transmissions
+ * crowd near the light and the dark levels), that bin split QBINS2 ways; a selection among the few
+ * values left ends it: quickselect's unpredictable branches on thousands of values cost several
+ * times more. Reorders the samples. */
 static float quantile(gatherer *g, double q)
 {
     size_t n = g->n;
@@ -308,16 +379,17 @@ static float quantile(gatherer *g, double q)
         k = n - 1;
     if (n < 256)
         return sp_select_float(g->v, n, k);
-    size_t below = 0;
-    int bin = 0;
-    while (below + g->hist[bin] <= k)
-        below += g->hist[bin++];
-    /* Move the bin's values to the front (order among them does not matter to the selection). */
-    size_t m = 0;
-    for (size_t i = 0; i < n; i++) {
-        g->v[m] = g->v[i];
-        m += g->bin[i] == bin;
-    }
+    size_t below;
+    bins_of(g->v, g->bin, n, 0.f, QBINS / 2, QBINS);
+    int b = rank_bin(g->bin, n, QBINS, k, &below);
+    size_t m = bin_members(g->v, g->bin, n, b, g->sel);
+    k -= below;
+    if (m < 64)
+        return sp_select_float(g->sel, m, k);
+    /* Bin b spans [b, b + 1) / (QBINS / 2) (the last bin, everything above): the same map refined. */
+    bins_of(g->sel, g->bin, m, (float)b / (QBINS / 2), (float)QBINS2 * (QBINS / 2), QBINS2);
+    b = rank_bin(g->bin, m, QBINS2, k, &below);
+    m = bin_members(g->sel, g->bin, m, b, g->v);
     return sp_select_float(g->v, m, k - below);
 }
 
@@ -328,23 +400,28 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     int rc = make_patch(e, v, c, err);
     if (rc)
         return rc;
+    /* The component's pixels, without a branch per cell (runs begin and end anywhere in a row): each
+     * row's values are written and only the component's counted, so the buffer holds a row more. */
     gatherer g;
-    if ((rc = gather_begin(e, &g, (size_t)c->area, err)))
+    const int bw = c->x1 - c->x0 + 1;
+    if ((rc = gather_begin(e, &g, (size_t)c->area + (size_t)bw + 1, err)))
         return rc;
-
     const size_t lim = e->vals_cap < e->vbin_cap ? e->vals_cap : e->vbin_cap;
     float nmin = 1e30f;
-    const int bw = c->x1 - c->x0 + 1;
-    for (int y = c->y0; y <= c->y1; y++) {
+    for (int y = c->y0; y <= c->y1 && g.n + (size_t)bw < lim; y++) {
         const uint8_t *er = e->ext + (size_t)(y - e->wy0) * e->ww + (size_t)(c->x0 - e->wx0);
         const float *pr = e->nv + (size_t)(y - e->py0) * (size_t)e->pw + (size_t)(c->x0 - e->px0);
-        for (int x = 0; x < bw; x++)
-            if (er[x] == 0 && g.n < lim) {
-                float t = pr[x];
-                gather_add(&g, t);
-                if (t < nmin)
-                    nmin = t;
-            }
+        float *out = g.v;
+        size_t n = g.n;
+        for (int x = 0; x < bw; x++) {
+            float t = pr[x];
+            int in = er[x] == 0;
+            out[n] = t;
+            n += (size_t)in;
+            float tm = in ? t : 1e30f;
+            nmin = tm < nmin ? tm : nmin;
+        }
+        g.n = n;
     }
     if (g.n == 0)
         return sp_error_set(err, SP_ERR_INTERNAL, "measure: component %d has no pixels", label);
@@ -354,9 +431,10 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     if ((rc = gather_begin(e, &g, 8 * e->nopair, err)))
         return rc;
     const ptrdiff_t pw = e->pw;
+    pair_walk pwk = {0, 0};
     for (size_t q = 0; q < e->nopair; q++) {
         int x, y, dx, dy;
-        opair_at(e, q, &x, &y, &dx, &dy);
+        opair_at(e, &pwk, q, &x, &y, &dx, &dy);
         /* Samples k = 3..10 out, up to the frame's edge or another bubble. */
         int kmax = dx > 0 ? w - 1 - x : dx < 0 ? x : dy > 0 ? h - 1 - y : y;
         kmax = kmax < SP_EDGE_REACH_PX ? kmax : SP_EDGE_REACH_PX;
@@ -366,7 +444,7 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
         for (int k = 3; k <= kmax; k++) {
             if (lp[k * ls] != 0)
                 break; /* met another bubble */
-            gather_add(&g, pp[k * ps]);
+            g.v[g.n++] = pp[k * ps];
         }
     }
     /* No visible surroundings: the background model's own light level. */
@@ -374,18 +452,35 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     return SP_OK;
 }
 
-/* Profile s[k + 3] = n(p + k·d), k = −3..4. Position of the upward crossing of `level` nearest to
- * the p–q step (segments 0, −1, 1, −2, 2, −3, 3), linear between samples; NaN if none. */
+/* Segments j = k + 3 (0..6) of the profile s[k + 3] = n(p + k·d), k = −3..4, that cross `level`
+ * upwards, s[j] < level <= s[j + 1] (NaN samples cross nothing), as bits: found without branches,
+ * whose outcome the data decide and the processor would mispredict when all are tested. */
+static inline unsigned up_crossings(const double s[8], double level)
+{
+    unsigned m = 0;
+    for (int j = 0; j < 7; j++)
+        m |= (unsigned)((s[j] < level) & (s[j + 1] >= level)) << j;
+    return m;
+}
+
+/* Position of the crossing in segment j, linear between its samples. */
+static inline double segment_crossing(const double s[8], int j, double level)
+{
+    return (j - 3) + (level - s[j]) / (s[j + 1] - s[j]);
+}
+
+/* Position of the upward crossing of `level` nearest to the p–q step (segments k = 0, −1, 1, −2, 2,
+ * −3, 3: nearest first, the inner one of two equally near); NaN if none. Where it lies varies with
+ * the blur, so the segment is chosen by bit arithmetic rather than by a chain of branches: the
+ * highest crossing segment of 0..3 against the lowest of 4..6. */
 static double crossing(const double s[8], double level)
 {
-    static const int order[7] = {0, -1, 1, -2, 2, -3, 3};
-    for (int o = 0; o < 7; o++) {
-        int k = order[o];
-        double s0 = s[k + 3], s1 = s[k + 4];
-        if (s0 < level && s1 >= level) /* also rejects NaN */
-            return k + (level - s0) / (s1 - s0);
-    }
-    return NAN;
+    unsigned m = up_crossings(s, level);
+    if (!m)
+        return NAN;
+    /* Highest of 0..3 (−1 if none) and lowest of 4..6 (7 if none): "none" is 4 away, farther than any. */
+    int jl = 30 - __builtin_clz((m & 0x0f) << 1 | 1), jh = __builtin_ctz((m & 0x70) | 0x80);
+    return segment_crossing(s, 3 - jl <= jh - 3 ? jl : jh, level);
 }
 
 /* The profile at position t (in samples, k = −3..4), linearly interpolated; NaN outside. */
@@ -393,7 +488,8 @@ static double profile_at(const double s[8], double t)
 {
     if (!(t >= -3.0 && t <= 4.0))
         return NAN;
-    int k = (int)floor(t);
+    int k = (int)t; /* floor(t) */
+    k -= k > t;
     if (k >= 4)
         return s[7];
     double f = t - k;
@@ -420,18 +516,16 @@ static void profile(const sp_edges *e, int x, int y, int dx, int dy, double s[8]
         s[k + 3] = in_patch(e, x + k * dx, y + k * dy) ? (double)p[k * st] : NAN;
 }
 
-/* Nearest upward crossing of `level` at or beyond position t0 (outward) or before it (inward). */
+/* Nearest upward crossing of `level` to position t0 (the first of two equally near). */
 static double crossing_near(const double s[8], double level, double t0)
 {
     double best = NAN, bd = 1e30;
-    for (int k = -3; k < 4; k++) {
-        double s0 = s[k + 3], s1 = s[k + 4];
-        if (s0 < level && s1 >= level) {
-            double t = k + (level - s0) / (s1 - s0);
-            if (fabs(t - t0) < bd) {
-                bd = fabs(t - t0);
-                best = t;
-            }
+    for (unsigned m = up_crossings(s, level); m; m &= m - 1) {
+        int j = __builtin_ctz(m);
+        double t = segment_crossing(s, j, level);
+        if (fabs(t - t0) < bd) {
+            bd = fabs(t - t0);
+            best = t;
         }
     }
     return best;
@@ -504,9 +598,10 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
         return rc;
     e->cached_level = glevel;
     e->cached_light = light;
+    pair_walk pwk = {0, 0};
     for (size_t q = 0; q < np; q++) {
         int x, y, dx, dy;
-        opair_at(e, q, &x, &y, &dx, &dy);
+        opair_at(e, &pwk, q, &x, &y, &dx, &dy);
         double t;
         double nin;
         double wd;
@@ -516,7 +611,7 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
         if (!e->pair_ok[q])
             continue;
         if (isfinite(nin))
-            gather_add(&g, (float)nin);
+            g.v[g.n++] = (float)nin;
         e->xy[2 * e->n] = x + t * dx;
         e->xy[2 * e->n + 1] = y + t * dy;
         e->wid[e->n] = (float)wd;
@@ -527,30 +622,6 @@ int sp_edges_points(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
     /* Median inner level of the local steps, for the partial-coverage area. */
     e->n_step_in = g.n ? quantile(&g, 0.5) : e->n_dark;
     return SP_OK;
-}
-
-/* Index of outline pair (x, y) → (x + dx, y + dy) in the pair list, or -1: the cell's pairs follow
- * its first one (e->cell_pair), at most four, in dir4's order. */
-static long find_pair(const sp_edges *e, int x, int y, int dx, int dy)
-{
-    int wx = x - e->wx0, wy = y - e->wy0;
-    if (wx < 0 || wy < 0 || wx >= e->ww || wy >= e->wh)
-        return -1;
-    uint32_t d = dx == 1 ? 0 : dx == -1 ? 1 : dy == 1 ? 2 : 3; /* dir4's order */
-    size_t cell = (size_t)wy * (size_t)e->ww + (size_t)wx;
-    int32_t q = e->cell_pair[cell];
-    if (q < 0)
-        return -1;
-    for (size_t k = (size_t)q; k < e->nopair && e->opair[k] >> 2 == cell; k++)
-        if ((e->opair[k] & 3) == d)
-            return (long)k;
-    return -1;
-}
-
-/* Inside for the trace: any window cell not reached from outside (component or enclosed). */
-static inline int trace_in(const sp_edges *e, int x, int y)
-{
-    return ext_at(e, x, y) != 2;
 }
 
 int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
@@ -586,6 +657,13 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
     if ((rc = reserve((void **)&e->cpt, &e->c_cap, e->nopair + 2 * (size_t)(e->ww + e->wh) + 8,
                       sizeof(sp_contour_pt), err)))
         return rc;
+    /* The walk runs on window cells: a cell not in the exterior lies in the bounding box (the padding
+     * is exterior), so its eight neighbours are in the window. */
+    const ptrdiff_t ww = e->ww;
+    const ptrdiff_t off[4] = {1, ww, -1, -ww};  /* D as window index steps */
+    static const uint32_t d4[4] = {0, 2, 1, 3}; /* D's directions in dir4's order (pair codes) */
+    const uint8_t *ext = e->ext;
+    ptrdiff_t i = (ptrdiff_t)(sy - e->wy0) * ww + (sx - e->wx0);
     int x = sx, y = sy, d = 3;
     for (size_t it = 0; it < maxc; it++) {
         if ((size_t)e->nc >= e->c_cap &&
@@ -593,10 +671,18 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
             return rc;
         int dx = D[d][0], dy = D[d][1];
         double t = 0, nin, wd = NAN;
-        int ok = lab_at(labels, w, h, x + dx, y + dy) >= 0;
+        int ok = x + dx >= 0 && y + dy >= 0 && x + dx < w && y + dy < h;
         if (ok) {
-            /* The same pair as in sp_edges_points: its result when cached, else computed. */
-            long q = cached ? find_pair(e, x, y, dx, dy) : -1;
+            /* The same pair as in sp_edges_points: its result when cached (the cell's pairs follow its
+             * first one, in dir4's order), else computed. */
+            long q = -1;
+            if (cached)
+                for (int32_t k = e->cell_pair[i];
+                     k >= 0 && (size_t)k < e->nopair && e->opair[k] >> 2 == (uint32_t)i; k++)
+                    if ((e->opair[k] & 3) == d4[d]) {
+                        q = k;
+                        break;
+                    }
             if (q >= 0) {
                 ok = e->pair_ok[q];
                 t = e->pair_t[q];
@@ -616,14 +702,15 @@ int sp_edges_trace(sp_edges *e, const sp_frame_view *v, const int32_t *labels, i
         /* Walk along this crack in direction d+1 (exterior on the left); the diagonal cell first so
          * the object is 8-connected, as labelled. */
         int m = (d + 1) & 3;
-        int ax = x + D[m][0] + dx, ay = y + D[m][1] + dy, bx = x + D[m][0], by = y + D[m][1];
-        if (trace_in(e, ax, ay)) {
-            x = ax;
-            y = ay;
+        if (ext[i + off[m] + off[d]] != 2) {
+            i += off[m] + off[d];
+            x += D[m][0] + dx;
+            y += D[m][1] + dy;
             d = (d + 3) & 3;
-        } else if (trace_in(e, bx, by)) {
-            x = bx;
-            y = by;
+        } else if (ext[i + off[m]] != 2) {
+            i += off[m];
+            x += D[m][0];
+            y += D[m][1];
         } else {
             d = m;
         }

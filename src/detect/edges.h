@@ -68,6 +68,8 @@ typedef struct sp_edges {
     size_t vals_cap;
     uint16_t *vbin; /* per sample of vals: its histogram bin (the quantile's first pass) */
     size_t vbin_cap;
+    float *vsel; /* the samples of the bin that holds the quantile's rank */
+    size_t vsel_cap;
     double *xy; /* sub-pixel outline points, n pairs */
     size_t xy_cap;
     float *wid;     /* per point: width of the central half (25..75 %) of the local step along the pair
