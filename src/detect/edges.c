@@ -7,6 +7,9 @@
 #include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
+#ifdef __SSE2__
+#include <emmintrin.h>
+#endif
 
 static const int dir4[4][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1}};
 
@@ -457,10 +460,21 @@ int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, 
  * whose outcome the data decide and the processor would mispredict when all are tested. */
 static inline unsigned up_crossings(const double s[8], double level)
 {
-    unsigned m = 0;
-    for (int j = 0; j < 7; j++)
-        m |= (unsigned)((s[j] < level) & (s[j + 1] >= level)) << j;
-    return m;
+    unsigned lt = 0, ge = 0; /* bit j: s[j] < level, s[j] >= level (both clear for NaN) */
+#ifdef __SSE2__
+    const __m128d l = _mm_set1_pd(level);
+    for (int j = 0; j < 8; j += 2) {
+        __m128d v = _mm_loadu_pd(s + j);
+        lt |= (unsigned)_mm_movemask_pd(_mm_cmplt_pd(v, l)) << j;
+        ge |= (unsigned)_mm_movemask_pd(_mm_cmpge_pd(v, l)) << j;
+    }
+#else
+    for (int j = 0; j < 8; j++) {
+        lt |= (unsigned)(s[j] < level) << j;
+        ge |= (unsigned)(s[j] >= level) << j;
+    }
+#endif
+    return lt & ge >> 1 & 0x7f;
 }
 
 /* Position of the crossing in segment j, linear between its samples. */
@@ -473,7 +487,7 @@ static inline double segment_crossing(const double s[8], int j, double level)
  * −3, 3: nearest first, the inner one of two equally near); NaN if none. Where it lies varies with
  * the blur, so the segment is chosen by bit arithmetic rather than by a chain of branches: the
  * highest crossing segment of 0..3 against the lowest of 4..6. */
-static double crossing(const double s[8], double level)
+static inline double crossing(const double s[8], double level)
 {
     unsigned m = up_crossings(s, level);
     if (!m)

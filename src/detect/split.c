@@ -240,7 +240,7 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split
         const sp_contour_pt *a = &P[(i - k + n) % n], *b = &P[(i + k) % n], *p = &P[i];
         double ux = b->x - a->x, uy = b->y - a->y, qx = p->x - a->x, qy = p->y - a->y;
         double cr = sgn * (ux * qy - uy * qx);
-        double L = cr > 0 ? hypot(ux, uy) : 0;
+        double L = cr > 0 ? sp_hypot(ux, uy) : 0;
         s->depth[i] = L > 1e-9 ? cr / L : 0;
         dmax = s->depth[i] > dmax ? s->depth[i] : dmax;
     }
@@ -249,7 +249,7 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split
     double len = 0;
     for (int i = 0; i < n; i++) {
         const sp_contour_pt *p = &P[i], *q = &P[(i + 1) % n];
-        len += hypot(q->x - p->x, q->y - p->y);
+        len += sp_hypot(q->x - p->x, q->y - p->y);
     }
     const double dmin = fmax(0.7, 0.2 * k * len / n);
     int nc = 0;
