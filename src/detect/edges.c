@@ -217,11 +217,19 @@ static inline int ext_at(const sp_edges *e, int x, int y)
     return e->ext[(size_t)wy * e->ww + wx];
 }
 
+/* On x86-64, the patch rows are also compiled for AVX2 and the variant picked at load time (twice the
+ * divisions per instruction; IEEE division gives the same bits at any width). */
+#if defined(__x86_64__) && defined(__GNUC__)
+#define ROW_CLONES __attribute__((target_clones("avx2", "default")))
+#else
+#define ROW_CLONES
+#endif
+
 /* One row of the patch: sp_view_norm's arithmetic, bit for bit (raw / (bg · gain) where that divisor
  * is positive, else 0). Dividing by 1 where the result is then multiplied by 0 (raw is finite) keeps
  * the loop free of branches, so the compiler vectorises it. */
-__attribute__((target_clones("avx2", "default"))) static void
-norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict bg, float gain, int n)
+ROW_CLONES static void norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict bg,
+                                 float gain, int n)
 {
     for (int i = 0; i < n; i++) {
         float b = bg[i] * gain;
@@ -232,8 +240,8 @@ norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict 
     }
 }
 
-__attribute__((target_clones("avx2", "default"))) static void
-norm_row16(float *restrict o, const uint16_t *restrict raw, const float *restrict bg, float gain, int n)
+ROW_CLONES static void norm_row16(float *restrict o, const uint16_t *restrict raw, const float *restrict bg,
+                                  float gain, int n)
 {
     for (int i = 0; i < n; i++) {
         float b = bg[i] * gain;
