@@ -560,10 +560,13 @@ static void profile(const sp_edges *e, int x, int y, int dx, int dy, double s[8]
 }
 
 /* Nearest upward crossing of `level` to position t0 (the first of two equally near). */
-static double crossing_near(const double s[8], double level, double t0)
+static inline double crossing_near(const double s[8], double level, double t0)
 {
+    unsigned m = up_crossings(s, level);
+    if (!(m & (m - 1))) /* none or one, the usual case: it is the nearest (t and t0 are finite) */
+        return m ? segment_crossing(s, __builtin_ctz(m), level) : NAN;
     double best = NAN, bd = 1e30;
-    for (unsigned m = up_crossings(s, level); m; m &= m - 1) {
+    for (; m; m &= m - 1) {
         int j = __builtin_ctz(m);
         double t = segment_crossing(s, j, level);
         if (fabs(t - t0) < bd) {
