@@ -36,6 +36,10 @@ typedef struct sp_contour_pt {
     uint8_t ok;    /* 1 when (x, y) is a sub-pixel crossing */
 } sp_contour_pt;
 
+/* How far outside the component's bounding box any stage reads transmission, px: the light level's
+ * samples reach 10 px out along the outline pairs, the profiles 4 (edges.h, method). */
+#define SP_EDGE_REACH_PX 10
+
 typedef struct sp_edges {
     /* Padded bounding-box window: component bbox grown by 1 px on every side. */
     int wx0, wy0, ww, wh;
@@ -45,6 +49,14 @@ typedef struct sp_edges {
     size_t stack_cap;
     uint32_t *opair; /* outline pairs in raster order, direction order: window index << 2 | direction */
     size_t opair_cap, nopair;
+    int32_t *cell_pair; /* ww×wh: index of the cell's first outline pair, -1 if none (sp_edges_trace) */
+    size_t cell_pair_cap;
+    /* Patch of normalised transmission (sp_view_norm, bit for bit) over the bounding box grown by
+     * SP_EDGE_REACH_PX and clipped to the frame, filled by sp_edges_levels: every later stage reads
+     * it instead of dividing again. Within the reach, a position is in the frame iff in the patch. */
+    float *nv;
+    size_t nv_cap;
+    int px0, py0, pw, ph;
     /* Per outline pair, what sp_edges_points found (for sp_edges_trace, which walks the same pairs):
      * pair_ok 0/1 (-1 = not computed), crossing and width; valid for the level cached_level. */
     int8_t *pair_ok;
@@ -54,6 +66,10 @@ typedef struct sp_edges {
     double cached_level, cached_light;
     float *vals; /* scratch samples for percentiles */
     size_t vals_cap;
+    uint16_t *vbin; /* per sample of vals: its histogram bin (the quantile's first pass) */
+    size_t vbin_cap;
+    float *vsel; /* the samples of the bin that holds the quantile's rank */
+    size_t vsel_cap;
     double *xy; /* sub-pixel outline points, n pairs */
     size_t xy_cap;
     float *wid;     /* per point: width of the central half (25..75 %) of the local step along the pair
@@ -76,7 +92,8 @@ void sp_edges_release(sp_edges *e);
 int sp_edges_exterior(sp_edges *e, const int32_t *labels, int w, int h, int label, const sp_component *c,
                       int holes_filled, sp_error *err);
 
-/* Dark, light and minimum transmission of the component (after sp_edges_exterior). */
+/* Dark, light and minimum transmission of the component (after sp_edges_exterior). Fills the
+ * transmission patch the later calls (points, trace, area) read: call it first. */
 int sp_edges_levels(sp_edges *e, const sp_frame_view *v, const int32_t *labels, int label,
                     const sp_component *c, sp_error *err);
 

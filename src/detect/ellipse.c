@@ -39,6 +39,17 @@ int sp_ellipse_from_moments(double m00, double cx, double cy, double mu20, doubl
     return 0;
 }
 
+void sp_ellipse_frame_init(sp_ellipse_frame *f, const sp_ellipse *el)
+{
+    f->cx = el->cx;
+    f->cy = el->cy;
+    f->c = cos(el->theta);
+    f->s = sin(el->theta);
+    f->a2 = el->a * el->a;
+    f->b2 = el->b * el->b;
+    f->b = el->b;
+}
+
 /* Real roots of x³ + a x² + b x + c (all three real here: the pencil (C, M) of the direct fit with M
  * positive semi-definite has real eigenvalues). Trigonometric form, then Newton polish. */
 static void cubic_roots(double a, double b, double c, double r[3])

@@ -66,8 +66,7 @@ void sp_measurer_free(sp_measurer *m)
 /* Solidity: filled area over the area of the convex hull of the filled pixels' corner points. Only
  * the leftmost and rightmost corner at each corner-grid height can be on the hull: listed by height,
  * they come already in the order the monotone chain needs (coordinates given as (y, x)). */
-static int solidity(sp_measurer *m, const int32_t *labels, int w, int label, const sp_component *c,
-                    double *out, sp_error *err)
+static int solidity(sp_measurer *m, const sp_edges *e, const sp_component *c, double *out, sp_error *err)
 {
     int rows = c->y1 - c->y0 + 1;
     size_t need = (size_t)(rows + 1) * 2 * 2 * 3 + 8; /* points + monotone-chain work (2n + 2) */
@@ -82,14 +81,15 @@ static int solidity(sp_measurer *m, const int32_t *labels, int w, int label, con
     for (int y = c->y0; y <= c->y1 + 1; y++) {
         int xl = -1, xr = -1;
         if (y <= c->y1) {
-            const int32_t *row = labels + (size_t)y * w;
+            /* The component's cells of the row, from its window (sp_edges_exterior): 0 there. */
+            const uint8_t *row = e->ext + (size_t)(y - e->wy0) * (size_t)e->ww;
             for (int x = c->x0; x <= c->x1; x++)
-                if (row[x] == label) {
+                if (row[x - e->wx0] == 0) {
                     xl = x;
                     break;
                 }
             for (int x = c->x1; x >= c->x0 && xl >= 0; x--)
-                if (row[x] == label) {
+                if (row[x - e->wx0] == 0) {
                     xr = x;
                     break;
                 }
@@ -157,8 +157,10 @@ static double diam_uncertainty(double d, double rms, int n, double span, double 
 static double fit_rms(const sp_edges *e, const sp_ellipse *el)
 {
     double ss = 0;
+    sp_ellipse_frame f;
+    sp_ellipse_frame_init(&f, el);
     for (int i = 0; i < e->n; i++) {
-        double d = sp_ellipse_distance(el, e->xy[2 * i], e->xy[2 * i + 1]);
+        double d = sp_ellipse_frame_distance(&f, e->xy[2 * i], e->xy[2 * i + 1]);
         ss += d * d;
     }
     return e->n ? sqrt(ss / e->n) : 0;
@@ -249,7 +251,7 @@ int sp_measure_component(sp_measurer *m, const sp_frame_view *v, const int32_t *
     }
 
     double sol = 1.0;
-    rc = solidity(m, labels, w, label, c, &sol, err);
+    rc = solidity(m, e, c, &sol, err);
     if (rc)
         return rc;
 
@@ -312,13 +314,17 @@ static int piece_on_edge(const sp_frame_view *v, const sp_edges *e, const sp_spl
     const sp_ellipse *el = &pc[i].el;
     double step = (double)e->n_light - (double)e->n_step_in;
     int m = 0;
+    sp_ellipse_frame f[SP_SPLIT_MAX];
+    for (int j = 0; j < np; j++)
+        sp_ellipse_frame_init(&f[j], &pc[j].el);
+    const double ct = f[i].c, st = f[i].s;
     for (int k = 0; k < 64; k++) {
-        double t = 2 * M_PI * k / 64, ct = cos(el->theta), st = sin(el->theta);
+        double t = 2 * M_PI * k / 64;
         double u = el->a * cos(t), w = el->b * sin(t);
         double x = el->cx + u * ct - w * st, y = el->cy + u * st + w * ct;
         int covered = 0;
         for (int j = 0; j < np && !covered; j++)
-            covered = j != i && sp_ellipse_distance(&pc[j].el, x, y) < 1.5;
+            covered = j != i && sp_ellipse_frame_distance(&f[j], x, y) < 1.5;
         double n = covered ? NAN : view_bilinear(v, x, y);
         if (isfinite(n))
             scratch[m++] = (float)((n - e->n_step_in) / step - frac);

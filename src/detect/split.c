@@ -71,13 +71,9 @@ static int reserve_all(sp_splitter *s, size_t n, sp_error *err)
 
 double sp_ellipse_distance(const sp_ellipse *el, double x, double y)
 {
-    double c = cos(el->theta), s = sin(el->theta);
-    double px = x - el->cx, py = y - el->cy;
-    double u = px * c + py * s, v = -px * s + py * c;
-    double a2 = el->a * el->a, b2 = el->b * el->b;
-    double f = u * u / a2 + v * v / b2 - 1.0;
-    double g = 2.0 * hypot(u / a2, v / b2);
-    return g > 1e-12 ? f / g : -el->b;
+    sp_ellipse_frame f;
+    sp_ellipse_frame_init(&f, el);
+    return sp_ellipse_frame_distance(&f, x, y);
 }
 
 typedef struct arc {
@@ -137,9 +133,11 @@ static void fit_group(sp_splitter *s, const sp_edges *e, const arc *arcs, int na
         return;
     double ss = 0;
     int bins[SPAN_BINS] = {0};
-    double c = cos(g->p.el.theta), sn = sin(g->p.el.theta);
+    sp_ellipse_frame f;
+    sp_ellipse_frame_init(&f, &g->p.el);
+    const double c = f.c, sn = f.s;
     for (int i = 0; i < m; i++) {
-        double d = sp_ellipse_distance(&g->p.el, s->xy[2 * i], s->xy[2 * i + 1]);
+        double d = sp_ellipse_frame_distance(&f, s->xy[2 * i], s->xy[2 * i + 1]);
         ss += d * d;
         double px = s->xy[2 * i] - g->p.el.cx, py = s->xy[2 * i + 1] - g->p.el.cy;
         double u = (px * c + py * sn) / g->p.el.a, v = (-px * sn + py * c) / g->p.el.b;
@@ -168,6 +166,9 @@ static int off_frame(double x, double y, int fw, int fh)
 static double union_iou(const sp_edges *e, const group *g, int ng, int fw, int fh)
 {
     long inter = 0, uni = 0;
+    sp_ellipse_frame f[MAX_ARCS];
+    for (int i = 0; i < ng; i++)
+        sp_ellipse_frame_init(&f[i], &g[i].p.el);
     for (int wy = 0; wy < e->wh; wy++)
         for (int wx = 0; wx < e->ww; wx++) {
             if (off_frame(e->wx0 + wx, e->wy0 + wy, fw, fh))
@@ -175,7 +176,7 @@ static double union_iou(const sp_edges *e, const group *g, int ng, int fw, int f
             int sil = e->ext[(size_t)wy * e->ww + wx] != 2;
             int in = 0;
             for (int i = 0; i < ng && !in; i++)
-                in = sp_ellipse_distance(&g[i].p.el, e->wx0 + wx, e->wy0 + wy) <= 0;
+                in = sp_ellipse_frame_inside(&f[i], e->wx0 + wx, e->wy0 + wy);
             inter += sil && in;
             uni += sil || in;
         }
@@ -187,11 +188,13 @@ static double union_iou(const sp_edges *e, const group *g, int ng, int fw, int f
 static double inside_fraction(const sp_edges *e, const sp_ellipse *el, int fw, int fh)
 {
     long in = 0, off = 0;
+    sp_ellipse_frame f;
+    sp_ellipse_frame_init(&f, el);
     for (int wy = 0; wy < e->wh; wy++)
         for (int wx = 0; wx < e->ww; wx++)
             in += e->ext[(size_t)wy * e->ww + wx] != 2 && !off_frame(e->wx0 + wx, e->wy0 + wy, fw, fh) &&
-                  sp_ellipse_distance(el, e->wx0 + wx, e->wy0 + wy) <= 0;
-    double ct = cos(el->theta), st = sin(el->theta);
+                  sp_ellipse_frame_inside(&f, e->wx0 + wx, e->wy0 + wy);
+    double ct = f.c, st = f.s;
     double hx = sqrt(el->a * el->a * ct * ct + el->b * el->b * st * st);
     double hy = sqrt(el->a * el->a * st * st + el->b * el->b * ct * ct);
     if (off_frame(el->cx - hx, el->cy - hy, fw, fh) || off_frame(el->cx + hx, el->cy + hy, fw, fh)) {
@@ -201,7 +204,7 @@ static double inside_fraction(const sp_edges *e, const sp_ellipse *el, int fw, i
         int y0 = (int)floor(el->cy - hy), y1 = (int)ceil(el->cy + hy);
         for (int y = y0; y <= y1; y++)
             for (int x = x0; x <= x1; x++)
-                off += off_frame(x, y, fw, fh) && sp_ellipse_distance(el, x, y) <= 0;
+                off += off_frame(x, y, fw, fh) && sp_ellipse_frame_inside(&f, x, y);
     }
     double vis = M_PI * el->a * el->b - (double)off;
     return vis > 0 ? (double)in / vis : 0;
@@ -221,22 +224,34 @@ int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split
     const sp_contour_pt *P = e->cpt;
 
     /* Orientation, so that a positive depth means the point lies on the interior side of its chord. */
-    double area2 = 0, len = 0;
+    double area2 = 0;
     for (int i = 0; i < n; i++) {
         const sp_contour_pt *p = &P[i], *q = &P[(i + 1) % n];
         area2 += p->x * q->y - q->x * p->y;
-        len += hypot(q->x - p->x, q->y - p->y);
     }
     const double sgn = area2 > 0 ? 1.0 : -1.0;
     int k = n / 16;
     k = k < 3 ? 3 : k > 40 ? 40 : k;
-    const double dmin = fmax(0.7, 0.2 * k * len / n);
+    /* Only a point on the interior side of its chord can be concave: the others get depth 0, which
+     * no test below tells from their own depth (a candidate is at least 0.7 deep, above both), and
+     * they need no chord length. */
+    double dmax = 0;
     for (int i = 0; i < n; i++) {
         const sp_contour_pt *a = &P[(i - k + n) % n], *b = &P[(i + k) % n], *p = &P[i];
         double ux = b->x - a->x, uy = b->y - a->y, qx = p->x - a->x, qy = p->y - a->y;
-        double L = hypot(ux, uy);
-        s->depth[i] = L > 1e-9 ? sgn * (ux * qy - uy * qx) / L : 0;
+        double cr = sgn * (ux * qy - uy * qx);
+        double L = cr > 0 ? sp_hypot(ux, uy) : 0;
+        s->depth[i] = L > 1e-9 ? cr / L : 0;
+        dmax = s->depth[i] > dmax ? s->depth[i] : dmax;
     }
+    if (!(dmax >= 0.7))
+        return SP_OK; /* no concave point: the depth floor below is at least 0.7 */
+    double len = 0;
+    for (int i = 0; i < n; i++) {
+        const sp_contour_pt *p = &P[i], *q = &P[(i + 1) % n];
+        len += sp_hypot(q->x - p->x, q->y - p->y);
+    }
+    const double dmin = fmax(0.7, 0.2 * k * len / n);
     int nc = 0;
     for (int i = 0; i < n; i++) {
         if (s->depth[i] < dmin)

@@ -3,10 +3,12 @@
  * fit" (Fitzgibbon, Pilu & Fisher 1999; Halir & Flusser 1998). */
 #include "detect/ellipse.h"
 #include "detect/hull.h"
+#include "detect/split.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
 #ifndef M_PI
 #define M_PI 3.14159265358979323846
@@ -147,11 +149,93 @@ static void test_hull(void)
     CHECK(sp_hull_area2(line, 3, w) == 0, "collinear");
 }
 
+static uint64_t rng_state = 0x9e3779b97f4a7c15ull;
+static double u01(void) /* xorshift64, uniform in [0, 1) */
+{
+    rng_state ^= rng_state << 13;
+    rng_state ^= rng_state >> 7;
+    rng_state ^= rng_state << 17;
+    return (double)(rng_state >> 11) * 0x1p-53;
+}
+
+static int same_double(double a, double b)
+{
+    return (isnan(a) && isnan(b)) || memcmp(&a, &b, sizeof a) == 0;
+}
+
+/* sp_hypot must give the C library's hypot bit for bit (the outline residuals and the splitter's
+ * chord lengths are compared with thresholds): random pairs over forty binary orders of magnitude,
+ * where sqrt(x² + y²) alone differs in the last bit for about one pair in seven, and the values the
+ * fast path hands back to the library. */
+static void test_hypot_library(void)
+{
+    long bad = 0, naive = 0;
+    const long n = 2000000;
+    for (long i = 0; i < n; i++) {
+        double x = (2 * u01() - 1) * ldexp(1.0, (int)(u01() * 40) - 20);
+        double y = (2 * u01() - 1) * ldexp(1.0, (int)(u01() * 40) - 20);
+        double want = hypot(x, y), got = sp_hypot(x, y);
+        if (!same_double(want, got) && bad++ < 3)
+            printf("hypot(%a, %a): library %a, sp_hypot %a\n", x, y, want, got);
+        naive += !same_double(want, sqrt(x * x + y * y));
+    }
+    CHECK(bad == 0, "sp_hypot differs from the library's hypot for %ld of %ld pairs", bad, n);
+    CHECK(naive > 0, "the sample never tells sqrt(x^2 + y^2) from hypot: it tests nothing");
+    const double special[] = {0.0,      -0.0,     1e-310, 0x1p-511, 0x1p-512,  1.0, 3.0,
+                              0x1p+511, 0x1p+512, 1e300,  INFINITY, -INFINITY, NAN};
+    const int ns = (int)(sizeof special / sizeof special[0]);
+    for (int i = 0; i < ns; i++)
+        for (int j = 0; j < ns; j++)
+            CHECK(same_double(hypot(special[i], special[j]), sp_hypot(special[i], special[j])),
+                  "hypot(%a, %a)", special[i], special[j]);
+}
+
+/* The ellipse frame's distance is the per-call formula (cos/sin of theta, hypot of the gradient)
+ * computed once per ellipse: same value bit for bit; and its inside test agrees with distance <= 0,
+ * the centre (where the gradient vanishes) included. */
+static void test_frame_distance(void)
+{
+    long bad_d = 0, bad_in = 0, inside = 0;
+    for (int k = 0; k < 200; k++) {
+        sp_ellipse el = {100 * u01(), 100 * u01(), 0, 0, u01() * M_PI - M_PI / 2};
+        el.b = 1 + 40 * u01();
+        el.a = el.b * (1 + 2 * u01());
+        sp_ellipse_frame f;
+        sp_ellipse_frame_init(&f, &el);
+        for (int i = 0; i < 500; i++) {
+            double x = i == 0 ? el.cx : el.cx + (2 * u01() - 1) * 1.5 * el.a;
+            double y = i == 0 ? el.cy : el.cy + (2 * u01() - 1) * 1.5 * el.a;
+            if (i == 1) { /* a pixel centre */
+                x = floor(x);
+                y = floor(y);
+            }
+            /* Reference: the distance as computed per call before the frame existed. */
+            double c = cos(el.theta), s = sin(el.theta), px = x - el.cx, py = y - el.cy;
+            double u = px * c + py * s, v = -px * s + py * c, a2 = el.a * el.a, b2 = el.b * el.b;
+            double F = u * u / a2 + v * v / b2 - 1.0, g = 2.0 * hypot(u / a2, v / b2);
+            double want = g > 1e-12 ? F / g : -el.b;
+            double got = sp_ellipse_frame_distance(&f, x, y);
+            bad_d += !same_double(want, got);
+            bad_in += sp_ellipse_frame_inside(&f, x, y) != (want <= 0);
+            inside += want <= 0;
+        }
+    }
+    CHECK(bad_d == 0, "frame distance differs from the per-call formula at %ld points", bad_d);
+    CHECK(bad_in == 0, "inside test disagrees with distance <= 0 at %ld points", bad_in);
+    CHECK(inside > 1000 && inside < 99000, "points inside: %ld of 100000 (both sides must be tested)",
+          inside);
+    sp_ellipse el = {3.0, 4.0, 5.0, 2.0, 0.3};
+    CHECK(sp_ellipse_distance(&el, 3.0, 4.0) == -2.0, "centre: distance -b, got %g",
+          sp_ellipse_distance(&el, 3.0, 4.0));
+}
+
 int main(void)
 {
     test_moments_reference();
     test_fit_noise_free();
     test_hull();
+    test_hypot_library();
+    test_frame_distance();
     if (failures)
         printf("%d failure(s)\n", failures);
     return failures ? 1 : 0;
