@@ -23,7 +23,7 @@ while getopts "t:j:" opt; do
   esac
 done
 shift $((OPTIND - 1))
-all=(fuzz_png fuzz_jpeg fuzz_ffimage fuzz_video fuzz_audio fuzz_calfile fuzz_liquid fuzz_checkpoint)
+all=(fuzz_png fuzz_jpeg fuzz_ffimage fuzz_video fuzz_audio fuzz_calfile fuzz_liquid fuzz_checkpoint fuzz_detect)
 targets=("$@")
 [ ${#targets[@]} -gt 0 ] || targets=("${all[@]}")
 py=/usr/bin/python3
@@ -36,6 +36,7 @@ CC=clang cmake -S "$here" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_
 need=(spume_core spume_io spume_physics)
 for t in "${targets[@]}"; do
   [ "$t" = fuzz_calfile ] && need+=(spume_detect spume_calib)
+  [ "$t" = fuzz_detect ] && need+=(spume_detect)
   [ "$t" = fuzz_checkpoint ] && need+=(spume_detect spume_calib spume_stats spume_track spume_report spume_pipeline)
 done
 cmake --build "$build" -j"$(nproc)" --target "${need[@]}" >/dev/null
@@ -46,6 +47,7 @@ for t in "${targets[@]}"; do
   [ -f "$src" ] || { echo "fuzz: no target $t" >&2; exit 2; }
   libs=("$build/libspume_io.a" "$build/libspume_physics.a" "$build/libspume_core.a")
   [ "$t" = fuzz_calfile ] && libs=("$build/libspume_calib.a" "$build/libspume_detect.a" "${libs[@]}")
+  [ "$t" = fuzz_detect ] && libs=("$build/libspume_detect.a" "${libs[@]}")
   [ "$t" = fuzz_checkpoint ] && libs=("$build/libspume_pipeline.a" "$build/libspume_report.a"
     "$build/libspume_calib.a" "$build/libspume_track.a" "$build/libspume_detect.a" "$build/libspume_stats.a"
     "${libs[@]}")
@@ -128,6 +130,31 @@ for t in "${targets[@]}"; do
     SPUME_FUZZ_DUMP_SEEDS="$seeds/fuzz_checkpoint" ASAN_OPTIONS=detect_leaks=1 \
       "$build/fuzz_checkpoint" "$build/empty-input" > "$build/fuzz_checkpoint.seeds.log" 2>&1
     touch "$seeds/fuzz_checkpoint/.done"
+  fi
+done
+
+# fuzz_detect: frames of a few bubble-like rings (dark rim, bright spot) over light, 8- and 16-bit,
+# behind the target's four header bytes (width-1, height-1, option bits, background mode).
+for t in "${targets[@]}"; do
+  if [ "$t" = fuzz_detect ] && [ ! -f "$seeds/fuzz_detect/.done" ]; then
+    mkdir -p "$seeds/fuzz_detect"
+    "$py" - "$seeds/fuzz_detect" <<'PY'
+import os, sys
+import numpy as np
+d = sys.argv[1]
+yy, xx = np.mgrid[0:40, 0:56]
+img = np.full((40, 56), 200.0)
+for cx, cy, r in ((14, 12, 8), (36, 24, 11), (50, 5, 6), (28, 20, 6)):
+    rr = np.hypot(xx - cx, yy - cy)
+    img = np.where(rr < r, np.where(rr < 0.4 * r, 190.0, 40.0), img)
+for flags, mode in ((0, 0), (2, 1), (4, 2), (8, 3), (16, 1), (1, 0), (1 | 32, 1)):
+    if flags & 1:
+        px = (img * 15).astype("<u2").tobytes()
+    else:
+        px = img.astype(np.uint8).tobytes()
+    open(os.path.join(d, f"rings-{flags}-{mode}"), "wb").write(bytes([55, 39, flags, mode]) + px)
+PY
+    touch "$seeds/fuzz_detect/.done"
   fi
 done
 

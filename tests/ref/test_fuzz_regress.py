@@ -1,5 +1,6 @@
 """Replays hostile inputs through the fuzz targets (tests/fuzz/fuzz_*.c, built without libFuzzer into
-probe_acoustic_fuzz_replay, probe_calib_fuzz_replay and probe_pipeline_fuzz_replay) and demands a clean answer for each: exit 0,
+probe_acoustic_fuzz_replay, probe_calib_fuzz_replay, probe_detect_fuzz_replay and
+probe_pipeline_fuzz_replay) and demands a clean answer for each: exit 0,
 meaning every file was read or refused within the error contract (status 1/2, one line naming the
 file). A crash, a sanitizer report (in the build-asan suite) or an abort on a broken contract fails.
 
@@ -23,7 +24,8 @@ REGRESS = os.path.join(ROOT, "fixtures", "fuzz-regress")
 BUILD = None
 
 PROBE = {"png": "acoustic", "jpeg": "acoustic", "ffimage": "acoustic", "video": "acoustic",
-         "audio": "acoustic", "liquid": "acoustic", "calfile": "calib", "checkpoint": "pipeline"}
+         "audio": "acoustic", "liquid": "acoustic", "calfile": "calib", "checkpoint": "pipeline",
+         "detect": "detect"}
 
 
 def valid_seeds(d):
@@ -69,6 +71,19 @@ def valid_seeds(d):
     open(p, "w").write('{"name": "oil", "model": "fixed", "temp_c": 20, "rho_kg_m3": 870, '
                        '"mu_pa_s": 0.05, "sigma_n_m": 0.03}')
     out["liquid"].append(p)
+    # Detection frames (fuzz_detect's four header bytes: width-1, height-1, option bits, background
+    # mode): bubble-like rings over light, 8- and 16-bit, every option bit; damaged copies change
+    # sizes, options and pixels, and the planned and plain passes must still agree bit for bit.
+    yy, xx = np.mgrid[0:40, 0:56]
+    ring = np.full((40, 56), 200.0)
+    for cx, cy, r in ((14, 12, 8), (36, 24, 11), (50, 5, 6), (28, 20, 6)):
+        rr = np.hypot(xx - cx, yy - cy)
+        ring = np.where(rr < r, np.where(rr < 0.4 * r, 190.0, 40.0), ring)
+    for flags, mode in ((0, 0), (2, 1), (4, 2), (8, 3), (16, 1), (1, 0), (1 | 32, 1), (6 | 64, 2)):
+        px = (ring * 15).astype("<u2").tobytes() if flags & 1 else ring.astype(np.uint8).tobytes()
+        p = os.path.join(d, f"rings-{flags}-{mode}")
+        open(p, "wb").write(bytes([55, 39, flags, mode]) + px)
+        out["detect"].append(p)
     sd = os.path.join(d, "ckseeds")
     os.mkdir(sd)
     empty = os.path.join(d, "empty-input")
