@@ -227,30 +227,21 @@ static inline int ext_at(const sp_edges *e, int x, int y)
 
 /* One row of the patch: sp_view_norm's arithmetic, bit for bit (raw / (bg · gain) where that divisor
  * is positive, else 0). Dividing by 1 where the result is then multiplied by 0 (raw is finite) keeps
- * the loop free of branches, so the compiler vectorises it. */
-ROW_CLONES static void norm_row8(float *restrict o, const uint8_t *restrict raw, const float *restrict bg,
-                                 float gain, int n)
-{
-    for (int i = 0; i < n; i++) {
-        float b = bg[i] * gain;
-        int pos = b > 0.f;
-        float d = pos ? b : 1.f;
-        float q = (float)raw[i] / d;
-        o[i] = q * (float)pos;
+ * the loop free of branches, so the compiler vectorises it. One body for both sample depths. */
+#define NORM_ROW(name, sample_t)                                                                             \
+    ROW_CLONES static void name(float *restrict o, const sample_t *restrict raw, const float *restrict bg,   \
+                                float gain, int n)                                                           \
+    {                                                                                                        \
+        for (int i = 0; i < n; i++) {                                                                        \
+            float b = bg[i] * gain;                                                                          \
+            int pos = b > 0.f;                                                                               \
+            float d = pos ? b : 1.f;                                                                         \
+            float q = (float)raw[i] / d;                                                                     \
+            o[i] = q * (float)pos;                                                                           \
+        }                                                                                                    \
     }
-}
-
-ROW_CLONES static void norm_row16(float *restrict o, const uint16_t *restrict raw, const float *restrict bg,
-                                  float gain, int n)
-{
-    for (int i = 0; i < n; i++) {
-        float b = bg[i] * gain;
-        int pos = b > 0.f;
-        float d = pos ? b : 1.f;
-        float q = (float)raw[i] / d;
-        o[i] = q * (float)pos;
-    }
-}
+NORM_ROW(norm_row8, uint8_t)
+NORM_ROW(norm_row16, uint16_t)
 
 /* Fill e->nv over the bounding box grown by SP_EDGE_REACH_PX, clipped to the frame. Its size is at
  * most the frame's, which the sources bound (sp_check_dims). */

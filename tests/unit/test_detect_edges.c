@@ -7,23 +7,13 @@
  *   by sorting: sets large enough for the histogram path, with values crowded into one bin so the
  *   second level runs too, and small ones;
  * - components touching each side of the frame, so the clipped window and patch are exercised. */
+#include "check.h"
 #include "detect/edges.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-
-static int failures;
-#define CHECK(cond, ...)                                                                                     \
-    do {                                                                                                     \
-        if (!(cond)) {                                                                                       \
-            failures++;                                                                                      \
-            printf("FAIL %s:%d: ", __FILE__, __LINE__);                                                      \
-            printf(__VA_ARGS__);                                                                             \
-            printf("\n");                                                                                    \
-        }                                                                                                    \
-    } while (0)
 
 static unsigned rng = 12345u;
 static double urand(void)
@@ -178,9 +168,5 @@ int main(void)
         check_scene("top-edge", bytes, 50, 0, 12, 0.2);
         check_scene("row", bytes, 48, 40, 0.6, 0.2); /* a single pixel */
     }
-    if (failures)
-        printf("%d failure(s)\n", failures);
-    else
-        printf("all passed\n");
-    return failures ? 1 : 0;
+    return check_report();
 }
