@@ -177,7 +177,7 @@ int sp_norm_plan_build(sp_norm_plan *p, const float *bg, int w, int h, sp_error 
     return SP_OK;
 }
 
-/* Samples of grid row y into p->work as floats. */
+/* Grid row y (row j of the gain grid): its samples, their ratio bins, counted into hist. */
 static void grid_row(const sp_norm_plan *p, const sp_image *f, int y, uint32_t *hist, int j)
 {
     float *raw = p->work;
