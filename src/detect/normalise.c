@@ -236,6 +236,17 @@ static void grid_row(const sp_norm_plan *p, const sp_image *f, int y, uint32_t *
             hist[(i & 3) * GAIN_BINS + bin[i]]++;
 }
 
+/* cm[x] = the smallest sample of column x over rows [y0, y1) of f, for either sample depth. */
+#define COLUMN_MINIMA(cm, row_fn)                                                                            \
+    do {                                                                                                     \
+        memcpy(cm, row_fn(f, y0), sizeof *cm *(size_t)w);                                                    \
+        for (int y = y0 + 1; y < y1; y++) {                                                                  \
+            const __typeof__(*cm) *s = row_fn(f, y);                                                         \
+            for (int x = 0; x < w; x++)                                                                      \
+                cm[x] = s[x] < cm[x] ? s[x] : cm[x];                                                         \
+        }                                                                                                    \
+    } while (0)
+
 void sp_norm_plan_scan(sp_norm_plan *p, const sp_image *f, float *gain)
 {
     const int w = f->width, h = f->height, T = SP_NORM_TILE;
@@ -253,12 +264,7 @@ void sp_norm_plan_scan(sp_norm_plan *p, const sp_image *f, float *gain)
         /* Darkest sample of each tile: column minima over the tile row, then over each tile. */
         if (f->bytes == 1) {
             uint8_t *cm = p->colmin8;
-            memcpy(cm, sp_row8(f, y0), (size_t)w);
-            for (int y = y0 + 1; y < y1; y++) {
-                const uint8_t *s = sp_row8(f, y);
-                for (int x = 0; x < w; x++)
-                    cm[x] = s[x] < cm[x] ? s[x] : cm[x];
-            }
+            COLUMN_MINIMA(cm, sp_row8);
             for (int tx = 0; tx < p->ntx; tx++) {
                 uint8_t m = 255;
                 int x = tx * T;
@@ -279,12 +285,7 @@ void sp_norm_plan_scan(sp_norm_plan *p, const sp_image *f, float *gain)
             }
         } else {
             uint16_t *cm = p->colmin16;
-            memcpy(cm, sp_row16(f, y0), sizeof *cm * (size_t)w);
-            for (int y = y0 + 1; y < y1; y++) {
-                const uint16_t *s = sp_row16(f, y);
-                for (int x = 0; x < w; x++)
-                    cm[x] = s[x] < cm[x] ? s[x] : cm[x];
-            }
+            COLUMN_MINIMA(cm, sp_row16);
             for (int tx = 0; tx < p->ntx; tx++) {
                 uint16_t m = 65535;
                 for (int x = tx * T; x < w && x < (tx + 1) * T; x++)

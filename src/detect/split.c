@@ -69,13 +69,6 @@ static int reserve_all(sp_splitter *s, size_t n, sp_error *err)
     return SP_OK;
 }
 
-double sp_ellipse_distance(const sp_ellipse *el, double x, double y)
-{
-    sp_ellipse_frame f;
-    sp_ellipse_frame_init(&f, el);
-    return sp_ellipse_frame_distance(&f, x, y);
-}
-
 typedef struct arc {
     int i0, i1; /* unrolled contour indices [i0, i1) */
 } arc;

@@ -41,8 +41,4 @@ void sp_splitter_free(sp_splitter *s);
 int sp_split_contour(sp_splitter *s, const sp_edges *e, int fw, int fh, sp_split_piece *pieces, int *np,
                      int *status, sp_error *err);
 
-/* Signed RMS-free helper, exposed for tests: approximate geometric distance of (x, y) from el
- * (first-order, |F| / |∇F| with F the normalised implicit form). */
-double sp_ellipse_distance(const sp_ellipse *el, double x, double y);
-
 #endif

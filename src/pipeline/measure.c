@@ -653,6 +653,18 @@ static int slot_store(slot *sl, const sp_detect_result *r)
     return 0;
 }
 
+/* Progress of the detection pass after `done` frames of the selection. */
+static void detect_progress(const sp_measure_settings *s, const sp_source_info *info, const sp_resume *rs,
+                            int64_t done, double t0)
+{
+    if (!s->progress)
+        return;
+    /* A resumed run's source holds only the frames left: count those done before too. */
+    int64_t total = info->frames_selected > 0 ? info->frames_selected + sp_resume_pos(rs) : -1;
+    sp_progress p = {"detect", done, total, now_s() - t0};
+    s->progress(s->progress_ud, &p);
+}
+
 /* Frames stream through a ring of slots: a decoder thread fills them in order, worker threads measure
  * any filled one, and the caller consumes them strictly in frame order (tables, tracks) and hands
  * each slot back to the decoder. Every wait blocks on a condition variable, so an idle worker leaves
@@ -1020,11 +1032,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                 *err = fl.err;
                 goto done;
             }
-            if (s->progress && (pos - sp_resume_pos(rs)) % batch != 0) {
-                int64_t total = info->frames_selected > 0 ? info->frames_selected + sp_resume_pos(rs) : -1;
-                sp_progress p = {"detect", pos, total, now_s() - t0};
-                s->progress(s->progress_ud, &p);
-            }
+            if ((pos - sp_resume_pos(rs)) % batch != 0) /* the last, short step */
+                detect_progress(s, info, rs, pos, t0);
             break;
         }
         if (pos == 0)
@@ -1070,12 +1079,8 @@ int sp_measure(const char *input, const char *outdir, const sp_measure_settings 
                 sl->level, frac, vol);
         pos++;
         flow_release(&fl);
-        if (s->progress && (pos - sp_resume_pos(rs)) % batch == 0) {
-            /* A resumed run's source holds only the frames left: count those done before too. */
-            int64_t total = info->frames_selected > 0 ? info->frames_selected + sp_resume_pos(rs) : -1;
-            sp_progress p = {"detect", pos, total, now_s() - t0};
-            s->progress(s->progress_ud, &p);
-        }
+        if ((pos - sp_resume_pos(rs)) % batch == 0)
+            detect_progress(s, info, rs, pos, t0);
     }
     flow_stop(&fl, decoding ? &dec_th : NULL, work_th, nstarted);
     decoding = nstarted = 0;

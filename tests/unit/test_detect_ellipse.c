@@ -225,8 +225,10 @@ static void test_frame_distance(void)
     CHECK(inside > 1000 && inside < 99000, "points inside: %ld of 100000 (both sides must be tested)",
           inside);
     sp_ellipse el = {3.0, 4.0, 5.0, 2.0, 0.3};
-    CHECK(sp_ellipse_distance(&el, 3.0, 4.0) == -2.0, "centre: distance -b, got %g",
-          sp_ellipse_distance(&el, 3.0, 4.0));
+    sp_ellipse_frame fc;
+    sp_ellipse_frame_init(&fc, &el);
+    CHECK(sp_ellipse_frame_distance(&fc, 3.0, 4.0) == -2.0, "centre: distance -b, got %g",
+          sp_ellipse_frame_distance(&fc, 3.0, 4.0));
 }
 
 int main(void)
