@@ -4,6 +4,7 @@
 
 #include <libavcodec/avcodec.h>
 #include <libavformat/avformat.h>
+#include <libavutil/cpu.h>
 #include <libavutil/imgutils.h>
 #include <libavutil/intreadwrite.h>
 #include <libavutil/pixdesc.h>
@@ -424,8 +425,11 @@ int sp_video_open(sp_video **out, const char *path, int sparse, int64_t known_to
         goto oom;
     v->dec->pkt_timebase = st->time_base;
     v->dec->max_pixels = SP_MAX_PIXELS;
-    /* Frame or slice threading; frames still come out in order, so results do not depend on it. */
-    v->dec->thread_count = 0;
+    /* Frame or slice threading; frames still come out in order, so results do not depend on it. One
+     * decoding thread per core, not libavcodec's automatic one more: the measuring threads want those
+     * cores too, and the extra frame thread only adds waiting (docs/methods-speed.md). */
+    int cores = av_cpu_count();
+    v->dec->thread_count = cores < 1 ? 1 : cores > 16 ? 16 : cores;
     v->dec->thread_type = FF_THREAD_FRAME | FF_THREAD_SLICE;
     /* Sparse reading of a codec whose every frame stands alone: without frame threads each packet
      * gives its frame at once, so a packet not wanted can be dropped without decoding it. */
