@@ -8,6 +8,12 @@ larger, prints the wall time of `ffmpeg -i FILE -f null -` (decoding only, ffmpe
 threading) and of the whole `spume measure FILE` run, and their ratio (the goal is <= 1.2: analysis
 overlapped with decoding). Each command is run `--repeat` times and the fastest run is kept.
 
+It also times spume reading the file with nothing to measure (`--roi 0,0,16,16 --no-report`): the CPU
+time of the whole run less that of the reading alone is what measuring costs per frame. Beside it,
+the budget the goal leaves: a run that may last 1.2 times ffmpeg's wall time on this many cores has at
+most cores x 1.2 x that time of CPU, of which reading takes its share; the rest, per frame, is the most
+measuring may cost even if it filled every idle moment of the decoder.
+
 The background estimate reads keyframes only when the run holds at least 16 of them (docs/methods.md);
 libx264's default keyframe interval is 250 frames, so the default run is 4000 frames long, a short
 high-speed run. The keyframe count and the background mode are printed beside each figure.
@@ -81,6 +87,13 @@ for name, (fn, enc) in files.items():
     out = os.path.join(work, "out-" + fn)
     shutil.rmtree(out, ignore_errors=True)
     t_meas, c_meas = best([spume, "measure", path, "--out", out, "--quiet"])
+    read = os.path.join(work, "read-" + fn)
+    shutil.rmtree(read, ignore_errors=True)
+    t_read, c_read = best([spume, "measure", path, "--out", read, "--quiet", "--no-report", "--roi", "0,0,16,16"])
+    shutil.rmtree(read, ignore_errors=True)
+    cores = len(os.sched_getaffinity(0))
+    per_frame = (c_meas - c_read) / args.frames * 1e3
+    budget = (cores * 1.2 * t_dec - c_read) / args.frames * 1e3
     keys = sh(["ffprobe", "-v", "error", "-skip_frame", "nokey", "-select_streams", "v:0", "-count_frames",
                "-show_entries", "stream=nb_read_frames", "-of", "csv=p=0", path]).strip()
     with open(os.path.join(out, "summary.json")) as f:
@@ -89,5 +102,7 @@ for name, (fn, enc) in files.items():
           f"({args.frames / t_dec:.0f} frames/s, CPU {c_dec:.1f} s); spume measure {t_meas:.2f} s "
           f"({args.frames / t_meas:.0f} frames/s, CPU {c_meas:.1f} s, background from: {mode}); "
           f"ratio {t_meas / t_dec:.2f} (goal <= 1.2)")
+    print(f"  spume reading alone {t_read:.2f} s (CPU {c_read:.1f} s); measuring costs {per_frame:.2f} ms of CPU "
+          f"per frame; the goal leaves at most {budget:.2f} ms per frame on {cores} cores")
 if not args.keep:
     shutil.rmtree(work)
