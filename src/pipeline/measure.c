@@ -13,11 +13,13 @@
 #include "pipeline/tracking.h"
 #include "report/report.h"
 
+#include <errno.h>
 #include <math.h>
 #include <omp.h>
 #include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
 #include <time.h>
 
 #ifndef M_PI
@@ -749,10 +751,28 @@ static void measure_slot(flow *f, int id, int64_t seq)
         sl->rc = sp_error_set(&sl->err, SP_ERR_INTERNAL, "measure: out of memory");
 }
 
+/* Measuring yields to decoding. When both compete for the cores, the decoder of a compressed file
+ * must stay ahead: with the ring empty, its threads' waits on one another leave cores idle that
+ * measuring could have used (docs/methods-speed.md). On Linux a thread's nice value is its own, so
+ * each worker runs WORKER_NICE above the thread that started it. A hint only: left as it was if the
+ * system refuses. */
+#define WORKER_NICE 5
+static void yield_to_decoding(void)
+{
+#ifdef __linux__
+    errno = 0;
+    int n = getpriority(PRIO_PROCESS, 0);
+    if (n == -1 && errno)
+        return;
+    (void)setpriority(PRIO_PROCESS, 0, n + WORKER_NICE);
+#endif
+}
+
 static void *work_loop(void *arg)
 {
     worker *wk = arg;
     flow *f = wk->f;
+    yield_to_decoding();
     pthread_mutex_lock(&f->mu);
     for (;;) {
         while (!f->quit && f->taken == f->decoded && !f->end)
