@@ -6,7 +6,9 @@ run).
 For H.264 (libx264, yuv420p) and FFV1 (grey, lossless) files of a synthesised plume at 640x800 or
 larger, prints the wall time of `ffmpeg -i FILE -f null -` (decoding only, ffmpeg's default
 threading) and of the whole `spume measure FILE` run, and their ratio (the goal is <= 1.2: analysis
-overlapped with decoding). Each command is run `--repeat` times and the fastest run is kept.
+overlapped with decoding). The commands run back to back `--repeat` times; the fastest run of each is
+printed, and then the ratio within each round, which compares runs made seconds apart (this
+machine's speed drifts by tens of per cent over minutes).
 
 It also times spume reading the file with nothing to measure (`--roi 0,0,16,16 --no-report`): the CPU
 time of the whole run less that of the reading alone is what measuring costs per frame. Beside it,
@@ -19,7 +21,7 @@ libx264's default keyframe interval is 250 frames, so the default run is 4000 fr
 high-speed run. The keyframe count and the background mode are printed beside each figure.
 
 usage: /usr/bin/python3 bench/bench_decode.py [--build build] [--frames 4000] [--size 640x800]
-                                              [--repeat 1] [--keep DIR]
+                                              [--repeat 3] [--keep DIR]
 """
 import argparse
 import json
@@ -36,7 +38,7 @@ ap = argparse.ArgumentParser()
 ap.add_argument("--build", default=os.path.join(here, "..", "build"))
 ap.add_argument("--frames", type=int, default=4000)
 ap.add_argument("--size", default="640x800")
-ap.add_argument("--repeat", type=int, default=1)
+ap.add_argument("--repeat", type=int, default=3)
 ap.add_argument("--keep", help="work directory to keep and reuse (default: a temporary one, removed)")
 args = ap.parse_args()
 spume = os.path.abspath(os.path.join(args.build, "spume"))
@@ -51,17 +53,14 @@ def sh(cmd):
     return p.stdout
 
 
-def best(cmd):
-    """Fastest wall time of `repeat` runs, and the CPU time (user + system) of that run."""
-    runs = []
-    for _ in range(args.repeat):
-        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        t0 = time.perf_counter()
-        sh(cmd)
-        t = time.perf_counter() - t0
-        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        runs.append((t, r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime))
-    return min(runs)
+def timed(cmd):
+    """Wall time of one run, and its CPU time (user + system)."""
+    r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    t0 = time.perf_counter()
+    sh(cmd)
+    t = time.perf_counter() - t0
+    r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return t, r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime
 
 
 scene = os.path.join(work, "scene")
@@ -83,14 +82,23 @@ for name, (fn, enc) in files.items():
     if not os.path.exists(path):
         sh(["ffmpeg", "-nostdin", "-loglevel", "error", "-y", "-i", src, *enc, path + ".tmp.mkv"])
         os.rename(path + ".tmp.mkv", path)
-    t_dec, c_dec = best(["ffmpeg", "-nostdin", "-loglevel", "error", "-i", path, "-f", "null", "-"])
     out = os.path.join(work, "out-" + fn)
-    shutil.rmtree(out, ignore_errors=True)
-    t_meas, c_meas = best([spume, "measure", path, "--out", out, "--quiet"])
     read = os.path.join(work, "read-" + fn)
+    # The three commands back to back in each round, so that a round's ratio compares runs made
+    # within seconds of each other; the machine's speed drifts between rounds.
+    rounds = []
+    for _ in range(args.repeat):
+        shutil.rmtree(out, ignore_errors=True)
+        shutil.rmtree(read, ignore_errors=True)
+        rounds.append((timed(["ffmpeg", "-nostdin", "-loglevel", "error", "-i", path, "-f", "null", "-"]),
+                       timed([spume, "measure", path, "--out", out, "--quiet"]),
+                       timed([spume, "measure", path, "--out", read, "--quiet", "--no-report", "--roi",
+                              "0,0,16,16"])))
     shutil.rmtree(read, ignore_errors=True)
-    t_read, c_read = best([spume, "measure", path, "--out", read, "--quiet", "--no-report", "--roi", "0,0,16,16"])
-    shutil.rmtree(read, ignore_errors=True)
+    (t_dec, c_dec), _, _ = min(rounds, key=lambda r: r[0][0])
+    _, (t_meas, c_meas), _ = min(rounds, key=lambda r: r[1][0])
+    _, _, (t_read, c_read) = min(rounds, key=lambda r: r[2][0])
+    paired = sorted(r[1][0] / r[0][0] for r in rounds)
     cores = len(os.sched_getaffinity(0))
     per_frame = (c_meas - c_read) / args.frames * 1e3
     budget = (cores * 1.2 * t_dec - c_read) / args.frames * 1e3
@@ -104,5 +112,7 @@ for name, (fn, enc) in files.items():
           f"ratio {t_meas / t_dec:.2f} (goal <= 1.2)")
     print(f"  spume reading alone {t_read:.2f} s (CPU {c_read:.1f} s); measuring costs {per_frame:.2f} ms of CPU "
           f"per frame; the goal leaves at most {budget:.2f} ms per frame on {cores} cores")
+    print(f"  ratio within each round (measure right after ffmpeg): "
+          f"{', '.join(f'{r:.2f}' for r in paired)}; median {paired[len(paired) // 2]:.2f}")
 if not args.keep:
     shutil.rmtree(work)
